@@ -1,0 +1,178 @@
+"""Validated molecule cases.
+
+A case is one molecule at one geometry: atoms, charge, multiplicity, the basis
+sets it is run in, an optional frozen core or active space, and published
+reference energies with their sources.  A case file with a ``[scan]`` table
+expands into one case per bond length, named ``name@<length>``.
+
+Conventions
+-----------
+* Atom coordinates are stored in the file's ``units`` ("angstrom" or "bohr");
+  :meth:`Case.coords_bohr` converts with the CODATA 2018 Bohr radius.
+* Atom indices (``scan.bond``, ``scan.move``) count from 0 in file order.
+* ``multiplicity`` is 2S + 1; ``n_electrons`` counts all electrons of the
+  molecule (nuclear charges minus ``charge``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from benchsuite.constants import ANGSTROM_BOHR, BOHR_ANGSTROM
+from benchsuite.registry.elements import ATOMIC_NUMBER
+
+#: Two atoms closer than this (in angstrom) are rejected as a typo.
+MIN_ATOM_DISTANCE_ANGSTROM = 0.3
+
+
+@dataclass(frozen=True)
+class Basis:
+    """A basis choice: one PySCF basis name, or a per-element table.
+
+    ``label`` is how the basis is named on the command line and in outputs:
+    the lower-case name (``"sto-3g"``) or, for a table, ``"H:6-31g,O:cc-pvdz"``
+    in the table's order.
+    """
+
+    label: str
+    spec: str | tuple[tuple[str, str], ...]
+
+    def for_pyscf(self) -> str | dict[str, str]:
+        """The value for ``pyscf.gto.Mole.basis``."""
+        return self.spec if isinstance(self.spec, str) else dict(self.spec)
+
+
+@dataclass(frozen=True)
+class ActiveSpace:
+    """A complete active space: ``electrons`` in ``orbitals`` spatial orbitals
+    around the Fermi level of the SCF orbitals (doubly occupied core below)."""
+
+    electrons: int
+    orbitals: int
+
+
+@dataclass(frozen=True)
+class PublishedValue:
+    """A published energy for this molecule (hartree) and its bib key."""
+
+    method: str
+    basis: str
+    energy_ha: float
+    source: str
+    note: str = ""
+    from_memory: bool = False
+
+
+@dataclass(frozen=True)
+class Scan:
+    """Bond scan: atom ``bond[1]`` and the atoms in ``move`` are translated
+    together along bond[0] -> bond[1] so that the bond has each length
+    (in the file's units)."""
+
+    bond: tuple[int, int]
+    lengths: tuple[float, ...]
+    move: tuple[int, ...] = ()
+
+
+@dataclass(frozen=True)
+class Case:
+    """One molecule at one geometry, validated.
+
+    ``frozen_core`` is ``None`` (all electrons correlated), ``True`` (PySCF's
+    chemical core, resolved in :mod:`benchsuite.chem`), or a number of lowest
+    spatial orbitals kept doubly occupied.
+    """
+
+    name: str
+    title: str
+    units: str
+    charge: int
+    multiplicity: int
+    symbols: tuple[str, ...]
+    coords: tuple[tuple[float, float, float], ...]
+    bases: tuple[Basis, ...]
+    tags: tuple[str, ...]
+    geometry_source: str
+    path: Path
+    frozen_core: bool | int | None = None
+    active_space: ActiveSpace | None = None
+    published: tuple[PublishedValue, ...] = ()
+    scan: Scan | None = None
+    scan_parent: str | None = None
+    scan_length: float | None = None
+    notes: str = ""
+    extra: dict = field(default_factory=dict, compare=False, hash=False)
+
+    @property
+    def n_electrons(self) -> int:
+        return sum(ATOMIC_NUMBER[s] for s in self.symbols) - self.charge
+
+    @property
+    def spin(self) -> int:
+        """2S = n_alpha - n_beta (PySCF's ``spin``)."""
+        return self.multiplicity - 1
+
+    @property
+    def n_alpha_beta(self) -> tuple[int, int]:
+        n = self.n_electrons
+        return (n + self.spin) // 2, (n - self.spin) // 2
+
+    @property
+    def is_open_shell(self) -> bool:
+        return self.multiplicity > 1
+
+    def coords_bohr(self) -> np.ndarray:
+        xyz = np.asarray(self.coords, dtype=float)
+        return xyz * ANGSTROM_BOHR if self.units == "angstrom" else xyz
+
+    def coords_angstrom(self) -> np.ndarray:
+        xyz = np.asarray(self.coords, dtype=float)
+        return xyz if self.units == "angstrom" else xyz * BOHR_ANGSTROM
+
+    @property
+    def default_basis(self) -> Basis:
+        return self.bases[0]
+
+    def basis(self, label: str | None) -> Basis:
+        """The case's basis with this label, or any PySCF basis name given."""
+        if label is None:
+            return self.default_basis
+        for b in self.bases:
+            if b.label == label.lower():
+                return b
+        return Basis(label=label.lower(), spec=label.lower())
+
+    def published_for(self, basis_label: str) -> tuple[PublishedValue, ...]:
+        return tuple(p for p in self.published if p.basis.lower() == basis_label.lower())
+
+
+def format_length(length: float) -> str:
+    """How a scan length appears in a point's name: ``1.5`` -> ``"1.5"``."""
+    return format(float(length), "g")
+
+
+def scan_geometry(coords: np.ndarray, scan: Scan, length: float) -> np.ndarray:
+    """Coordinates with bond ``scan.bond`` set to ``length`` (file units)."""
+    i, j = scan.bond
+    vec = coords[j] - coords[i]
+    d0 = float(np.linalg.norm(vec))
+    shift = (length - d0) * vec / d0
+    out = coords.copy()
+    for k in {j, *scan.move}:
+        out[k] = out[k] + shift
+    return out
+
+
+def closest_pair_angstrom(coords_angstrom: np.ndarray) -> tuple[float, int, int] | None:
+    """Smallest interatomic distance (angstrom) and the pair, or None for one atom."""
+    n = len(coords_angstrom)
+    if n < 2:
+        return None
+    diff = coords_angstrom[:, None, :] - coords_angstrom[None, :, :]
+    dist = np.linalg.norm(diff, axis=-1)
+    dist[np.diag_indices(n)] = np.inf
+    i, j = np.unravel_index(np.argmin(dist), dist.shape)
+    return float(dist[i, j]), int(min(i, j)), int(max(i, j))
