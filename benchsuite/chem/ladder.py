@@ -1,0 +1,252 @@
+"""The classical reference ladder: HF, MP2, CCSD, CCSD(T), FCI or CASCI.
+
+Every rung is computed in the case's orbital space (:mod:`benchsuite.chem.space`):
+MP2 and CC with PySCF's ``frozen=`` list holding exactly the orbitals outside
+it, FCI/CASCI on the same active-space integrals the qubit Hamiltonian is
+built from.  Energies are totals in hartree (nuclear repulsion and frozen-core
+energy included); ``correlation_ha`` is relative to the HF rung.
+
+Open shells: ROHF orbitals; CCSD and CCSD(T) are spin-unrestricted on the ROHF
+determinant in semicanonical orbitals (occupied-occupied and virtual-virtual
+blocks of each spin's Fock matrix diagonalised inside the space), the usual
+ROHF-based CCSD(T) (Watts, Gauss & Bartlett, J. Chem. Phys. 98, 8718, 1993).
+MP2 is closed-shell only.
+
+The primary rung is FCI (no active space) or CASCI (active space).  Its root's
+<S^2> must equal S(S+1) for the case's multiplicity within 1e-6; a root of
+the wrong spin is rejected and the lowest root of the right spin is found with
+a spin penalty.  Beyond ``max_determinants`` the primary rung is skipped with
+the reason recorded, not attempted.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+from benchsuite.chem.cache import DiskCache
+from benchsuite.chem.integrals import MOIntegrals
+from benchsuite.chem.scf import ScfSummary, run_scf
+from benchsuite.chem.space import (OrbitalSpace, Prepared, case_integrals, prepare, restricted_kind,
+                                   solve_scf)
+from benchsuite.registry.case import Basis, Case, PublishedValue
+
+DEFAULT_MAX_DETERMINANTS = 5_000_000
+S2_TOLERANCE = 1e-6
+PRIMARY_METHODS = ("fci", "casci")
+
+
+@dataclass
+class Rung:
+    """One rung.  ``status``: ok, skipped (too large, or not applicable), failed, not-converged."""
+
+    method: str
+    energy_ha: float | None
+    correlation_ha: float | None
+    space: str
+    seconds: float
+    status: str = "ok"
+    note: str = ""
+    s2: float | None = None
+    n_determinants: int | None = None
+
+
+@dataclass
+class Ladder:
+    """All references for one (case, basis)."""
+
+    case: str
+    basis: str
+    space: OrbitalSpace
+    scf: ScfSummary
+    rungs: list[Rung]
+    published: list[PublishedValue]
+    multiplicity: int
+    n_electrons_total: int
+    cache_status: str = "off"
+    flags: list[str] = field(default_factory=list)
+
+    @property
+    def primary(self) -> Rung | None:
+        for r in self.rungs:
+            if r.method in PRIMARY_METHODS:
+                return r
+        return None
+
+    def rung(self, method: str) -> Rung | None:
+        return next((r for r in self.rungs if r.method == method), None)
+
+    def to_json(self) -> dict:
+        """The ``references --format json`` document."""
+        s = self.space
+        return {
+            "case": self.case, "basis": self.basis,
+            "n_electrons": s.n_electrons, "n_orbitals": s.n_orbitals,
+            "n_electrons_total": self.n_electrons_total, "n_orbitals_total": s.n_orbitals_total,
+            "n_frozen_core": s.n_core, "multiplicity": self.multiplicity, "space": s.to_dict(),
+            "scf": {"method": self.scf.method, "converged": self.scf.converged, "stable": self.scf.stable,
+                    **{k: v for k, v in self.scf.to_dict().items() if k not in ("method", "converged", "stable")}},
+            "ladder": [asdict(r) for r in self.rungs],
+            "primary": None if self.primary is None else self.primary.method,
+            "published": [asdict(p) for p in self.published],
+            "flags": self.flags, "cache": self.cache_status,
+        }
+
+    @classmethod
+    def from_meta(cls, meta: dict, case: Case, basis: Basis, space: OrbitalSpace, status: str) -> "Ladder":
+        return cls(case=case.name, basis=basis.label, space=space, scf=ScfSummary.from_dict(meta["scf"]),
+                   rungs=[Rung(**r) for r in meta["rungs"]], published=list(case.published_for(basis.label)),
+                   multiplicity=case.multiplicity, n_electrons_total=case.n_electrons,
+                   cache_status=status, flags=list(meta["flags"]))
+
+
+# -- rung kernels ---------------------------------------------------------------
+
+def exact_in_space(ints: MOIntegrals, multiplicity: int, label: str, method: str = "fci",
+                   max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> Rung:
+    """Lowest root of the right spin by PySCF's determinant FCI on the active-space integrals."""
+    from pyscf import fci
+
+    t0 = time.perf_counter()
+    norb, nelec = ints.n_orbitals, (ints.n_alpha, ints.n_beta)
+    ndet = int(fci.cistring.num_strings(norb, nelec[0]) * fci.cistring.num_strings(norb, nelec[1]))
+    if ndet > max_determinants:
+        return Rung(method, None, None, label, 0.0, "skipped",
+                    f"{ndet:,} determinants exceed the limit of {max_determinants:,}", n_determinants=ndet)
+    target = 0.25 * (multiplicity - 1) * (multiplicity + 1)   # S(S+1), S = (mult-1)/2
+    solver = fci.direct_spin1.FCI()
+    solver.conv_tol, solver.max_cycle, solver.verbose = 1e-12, 300, 0
+    e, ci = solver.kernel(ints.h1_ha, ints.eri_ha, norb, nelec, ecore=ints.constant_ha)
+    s2 = float(solver.spin_square(ci, norb, nelec)[0])
+    note = ""
+    if abs(s2 - target) > S2_TOLERANCE:
+        note = f"lowest root had <S^2> = {s2:.6f}, rejected; "
+        solver = fci.addons.fix_spin_(fci.direct_spin1.FCI(), shift=0.5, ss=target)
+        solver.conv_tol, solver.max_cycle, solver.verbose = 1e-12, 300, 0
+        e, ci = solver.kernel(ints.h1_ha, ints.eri_ha, norb, nelec, ecore=ints.constant_ha)
+        s2 = float(fci.spin_op.spin_square(ci, norb, nelec)[0])
+        note += f"spin-penalised root <S^2> = {s2:.6f}"
+    status = "ok" if abs(s2 - target) <= S2_TOLERANCE else "failed"
+    if status == "failed":
+        note += f"; no root with <S^2> = {target} found"
+    return Rung(method, float(e), None, label, time.perf_counter() - t0, status, note.strip("; "),
+                s2=s2, n_determinants=ndet)
+
+
+def _semicanonical_uhf(mf, space: OrbitalSpace):
+    """The ROHF determinant as a UHF object in semicanonical orbitals inside the space."""
+    from pyscf import scf
+
+    umf = scf.addons.convert_to_uhf(mf)
+    fock = umf.get_fock(dm=umf.make_rdm1())
+    inside = range(space.n_core, space.n_core + space.n_orbitals)
+    coeffs, energies = [], []
+    for spin in (0, 1):
+        c, occ = umf.mo_coeff[spin], umf.mo_occ[spin]
+        f_mo = c.T @ fock[spin] @ c
+        c_new, e_new = c.copy(), np.diag(f_mo).copy()
+        for block in ([i for i in inside if occ[i] > 0], [i for i in inside if occ[i] == 0]):
+            if block:
+                w, v = np.linalg.eigh(f_mo[np.ix_(block, block)])
+                c_new[:, block] = c[:, block] @ v
+                e_new[block] = w
+        coeffs.append(c_new)
+        energies.append(e_new)
+    umf.mo_coeff, umf.mo_energy = np.array(coeffs), np.array(energies)
+    return umf
+
+
+def _frozen(space: OrbitalSpace):
+    return space.frozen_indices or None
+
+
+def mp2_rung(mf, space: OrbitalSpace, e_hf: float) -> Rung:
+    from pyscf import mp
+
+    t0 = time.perf_counter()
+    if space.n_alpha != space.n_beta:
+        return Rung("mp2", None, None, space.label, 0.0, "skipped", "MP2 rung is for closed shells only")
+    e_corr = float(mp.MP2(mf, frozen=_frozen(space)).kernel()[0])
+    return Rung("mp2", e_hf + e_corr, e_corr, space.label, time.perf_counter() - t0)
+
+
+def cc_rungs(mf, space: OrbitalSpace, e_hf: float, tag: str = "") -> list[Rung]:
+    """CCSD and CCSD(T) in the space; restricted for closed shells, else semicanonical UCC.
+
+    ``tag="u"``: ``mf`` is a UHF solution; rungs are named uccsd/uccsd(t) and their
+    correlation energies are relative to ``e_hf``, the UHF energy.
+    """
+    from pyscf import cc
+
+    t0 = time.perf_counter()
+    label = space.label + (", UHF orbitals" if tag else "")
+    if tag == "u":                       # already a UHF object
+        solver = cc.UCCSD(mf, frozen=_frozen(space))
+    elif space.n_alpha != space.n_beta:  # ROHF determinant, semicanonical UCC
+        solver = cc.UCCSD(_semicanonical_uhf(mf, space), frozen=_frozen(space))
+    else:
+        solver = cc.CCSD(mf, frozen=_frozen(space))
+    solver.conv_tol, solver.conv_tol_normt, solver.max_cycle, solver.verbose = 1e-10, 1e-8, 200, 0
+    try:
+        e_corr, _, _ = solver.kernel()
+    except Exception as exc:  # a reference engine records a failed rung, never aborts the ladder
+        msg = f"{type(exc).__name__}: {exc}"
+        return [Rung(f"{tag}ccsd", None, None, label, time.perf_counter() - t0, "failed", msg),
+                Rung(f"{tag}ccsd(t)", None, None, label, 0.0, "failed", "CCSD failed")]
+    t1 = time.perf_counter()
+    status = "ok" if solver.converged else "not-converged"
+    note = "" if solver.converged else f"CCSD amplitudes not converged in {solver.max_cycle} cycles"
+    ccsd = Rung(f"{tag}ccsd", e_hf + float(e_corr), float(e_corr), label, t1 - t0, status, note)
+    e_t = float(solver.ccsd_t())
+    ccsd_t = Rung(f"{tag}ccsd(t)", e_hf + float(e_corr) + e_t, float(e_corr) + e_t, label,
+                  time.perf_counter() - t1, status, note)
+    return [ccsd, ccsd_t]
+
+
+# -- the ladder -----------------------------------------------------------------
+
+def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> dict:
+    """Run every rung (no cache); returns the JSON-ready metadata."""
+    solve_scf(prep)
+    space, scf_summary, ints = prep.space, prep.scf, prep.integrals
+    e_hf = scf_summary.energy_ha
+    hf = Rung("hf", e_hf, 0.0, space.label, scf_summary.seconds,
+              "ok" if scf_summary.trustworthy else "not-converged", "; ".join(scf_summary.flags))
+    rungs = [hf, mp2_rung(prep.mf, space, e_hf), *cc_rungs(prep.mf, space, e_hf)]
+    primary = "casci" if space.kind == "active-space" else "fci"
+    exact = exact_in_space(ints, prep.case.multiplicity, space.label, primary, max_determinants)
+    if exact.energy_ha is not None:
+        exact.correlation_ha = exact.energy_ha - e_hf
+    rungs.append(exact)
+    if prep.scf_kind == "uhf":
+        umf, usum = run_scf(prep.mol, "uhf")
+        uhf = Rung("uhf", usum.energy_ha, usum.energy_ha - e_hf, space.label + ", UHF orbitals",
+                   usum.seconds, "ok" if usum.trustworthy else "not-converged",
+                   f"<S^2> = {usum.s2:.4f}; correlation column relative to {scf_summary.method.upper()}")
+        rungs += [uhf, *cc_rungs(umf, space, usum.energy_ha, tag="u")]
+    flags = list(scf_summary.flags)
+    flags += [f"{r.method}: {r.note}" for r in rungs if r.status in ("failed", "not-converged") and r.note
+              and r.method != "hf"]
+    if exact.status == "skipped":
+        flags.append(f"{primary} skipped: {exact.note}")
+    return {"scf": scf_summary.to_dict(), "rungs": [asdict(r) for r in rungs], "flags": flags,
+            "reference_energy_check_ha": ints.reference_energy_ha() - e_hf}
+
+
+def reference_ladder(case: Case, basis: Basis | str | None = None, cache: DiskCache | None = None,
+                     scf_kind: str | None = None,
+                     max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> Ladder:
+    """The ladder for one (case, basis), served from the cache when it can be."""
+    prep = prepare(case, basis, scf_kind)
+    cache = cache or DiskCache(None)
+    fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep)}
+
+    def compute():
+        meta = compute_ladder(prep, max_determinants)
+        case_integrals(case, cache=cache, prep=prep)  # the same SCF serves later integral requests
+        return meta, None
+
+    meta, _, status = cache.get_or_compute("ladder", fields, compute)
+    return Ladder.from_meta(meta, case, prep.basis, prep.space, status)
