@@ -55,3 +55,19 @@ def run_cli(capsys, tmp_path, monkeypatch):
         return code, out.out, out.err
 
     return run
+
+
+@pytest.fixture(scope="session")
+def registry():
+    """The built-in registry, loaded once."""
+    from benchsuite.registry import Registry
+
+    return Registry.load()
+
+
+@pytest.fixture(scope="session")
+def ladder_cache(tmp_path_factory):
+    """One disk cache for the whole test session, so a ladder is computed once."""
+    from benchsuite.chem.cache import DiskCache
+
+    return DiskCache(tmp_path_factory.mktemp("ladder-cache"))

@@ -141,12 +141,24 @@ class Case:
         if label is None:
             return self.default_basis
         for b in self.bases:
-            if b.label == label.lower():
+            if b.label.lower() == label.lower():
                 return b
-        return Basis(label=label.lower(), spec=label.lower())
+        return parse_basis_label(label)
 
     def published_for(self, basis_label: str) -> tuple[PublishedValue, ...]:
         return tuple(p for p in self.published if p.basis.lower() == basis_label.lower())
+
+
+def parse_basis_label(label: str) -> Basis:
+    """A basis from its label: ``"6-31g"`` or a per-element ``"Li:6-31g,H:sto-3g"``."""
+    text = label.strip()
+    if ":" not in text:
+        return Basis(label=text.lower(), spec=text.lower())
+    pairs = []
+    for item in text.split(","):
+        elem, _, name = item.partition(":")
+        pairs.append((elem.strip().capitalize(), name.strip().lower()))
+    return Basis(label=",".join(f"{e}:{n}" for e, n in pairs), spec=tuple(pairs))
 
 
 def format_length(length: float) -> str:
