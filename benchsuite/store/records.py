@@ -1,0 +1,223 @@
+"""What the store keeps: one :class:`RunRecord` per invocation, one :class:`ResultRow` per task.
+
+Plain data in, plain data out: no PySCF, no OpenFermion, no numpy import.
+
+Units: energies in hartree (``*_ha``), errors and thresholds in millihartree
+(``*_mha``), times in seconds.  Times of day are ISO 8601 strings in UTC.
+
+Each dataclass field is one database column (:data:`RUN_COLUMNS`,
+:data:`RESULT_COLUMNS` say how it is stored): scalars as TEXT, REAL or
+INTEGER, booleans as INTEGER 0/1, dicts and lists as JSON TEXT written with
+``allow_nan=False`` after non-finite floats became ``null``.  A non-finite
+float in a REAL column is stored as NULL too.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from dataclasses import asdict, dataclass, field
+from datetime import datetime, timezone
+
+
+def utc_now() -> str:
+    """The current time, ISO 8601 in UTC to the second: ``2026-12-01T22:30:15+00:00``."""
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+@dataclass(kw_only=True)
+class RunRecord:
+    """One invocation of ``benchsuite run``.
+
+    ``options`` is ``{method: {option: value}}``; ``packages`` maps a package
+    name to its version; ``git`` is ``{"commit", "dirty"}`` of the working
+    directory (None where unknown); ``plugin_git`` maps a plugin to
+    ``{"package", "version", "commit", "dirty", "source"}``; ``machine`` is
+    :func:`benchsuite.store.provenance.machine_info`.  ``status`` is
+    ``running`` until :meth:`ResultStore.finish_run`; a run still ``running``
+    with no process behind it was killed and can be resumed.
+    """
+
+    run_id: str
+    started_at: str
+    command: str
+    suite: str | None = None
+    cases: list[str] = field(default_factory=list)
+    methods: list[str] = field(default_factory=list)
+    options: dict = field(default_factory=dict)
+    encoding: str
+    threshold_mha: float
+    threshold_source: str
+    seed: int
+    packages: dict = field(default_factory=dict)
+    git: dict = field(default_factory=dict)
+    plugin_git: dict = field(default_factory=dict)
+    machine: dict = field(default_factory=dict)
+    finished_at: str | None = None
+    status: str = "running"
+    summary: dict = field(default_factory=dict)
+
+    def to_json_dict(self) -> dict:
+        """Plain JSON-safe dict (non-finite floats become None)."""
+        return json_safe(asdict(self))
+
+
+@dataclass(kw_only=True)
+class ResultRow:
+    """One task, ``(case, basis, encoding, method, options)``, as judged.
+
+    ``status`` is one of :data:`benchsuite.scoring.STATUSES`, ``verdict`` one
+    of :data:`benchsuite.scoring.VERDICTS`.  ``error_mha`` is
+    ``1000 * (energy_ha - reference_energy_ha)``.  ``secondary`` holds the
+    other reference rungs and published values with the method's error
+    against each; ``scf`` is ``{"method", "converged", "stable", "flags"}``.
+    """
+
+    run_id: str
+    task_key: str
+    case: str
+    basis: str
+    encoding: str
+    method: str
+    options: dict = field(default_factory=dict)
+    status: str
+    verdict: str
+    energy_ha: float | None = None
+    stderr_ha: float | None = None
+    reference_method: str | None = None
+    reference_energy_ha: float | None = None
+    error_mha: float | None = None
+    threshold_mha: float
+    converged: bool | None = None
+    iterations: int | None = None
+    seconds: float
+    message: str = ""
+    n_qubits: int | None = None
+    n_terms: int | None = None
+    one_norm_ha: float | None = None
+    qwc_groups: int | None = None
+    resources: dict = field(default_factory=dict)
+    metadata: dict = field(default_factory=dict)
+    parameters: list | None = None
+    secondary: dict = field(default_factory=dict)
+    space: str = ""
+    tags: list[str] = field(default_factory=list)
+    scan_parent: str | None = None
+    scan_length: float | None = None
+    scf: dict = field(default_factory=dict)
+    finished_at: str = field(default_factory=utc_now)
+
+    def to_json_dict(self) -> dict:
+        """Plain JSON-safe dict (non-finite floats become None)."""
+        return json_safe(asdict(self))
+
+
+# -- canonical JSON and task keys -------------------------------------------------
+
+def json_safe(obj):
+    """``obj`` with tuples as lists, non-finite floats as None and numpy-like scalars as Python."""
+    if isinstance(obj, dict):
+        return {str(k): json_safe(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [json_safe(v) for v in obj]
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    if obj is None or isinstance(obj, (bool, int, str)):
+        return obj
+    if hasattr(obj, "tolist"):          # numpy scalar or array, without importing numpy
+        return json_safe(obj.tolist())
+    raise TypeError(f"{type(obj).__name__} {obj!r:.60} is not plain data (dict, list, str, number, bool, None)")
+
+
+def dumps(obj) -> str:
+    """Canonical JSON text: sorted keys, no spaces, no NaN (see :func:`json_safe`)."""
+    return json.dumps(json_safe(obj), sort_keys=True, separators=(",", ":"), allow_nan=False)
+
+
+def task_key(case: str, basis: str, encoding: str, method: str, options: dict) -> str:
+    """Stable identity of a task: ``case/basis/encoding/method#<12 hex>``.
+
+    The hex digits are the start of the SHA-256 of the canonical JSON of all
+    five parts, so two tasks differing only in an option value get different
+    keys while the readable part stays the same.  Dict order does not matter;
+    ``1`` and ``1.0`` are different option values.
+    """
+    digest = hashlib.sha256(dumps([case, basis, encoding, method, options]).encode()).hexdigest()
+    return f"{case}/{basis}/{encoding}/{method}#{digest[:12]}"
+
+
+# -- how each field is stored -------------------------------------------------------
+
+@dataclass(frozen=True)
+class Column:
+    """A dataclass field as a column: ``kind`` is text, real, int, bool or json."""
+
+    name: str
+    kind: str
+    required: bool = False
+
+    @property
+    def sql(self) -> str:
+        """The column name quoted for SQL (``case`` is a keyword)."""
+        return f'"{self.name}"'
+
+    def to_db(self, value):
+        """The Python value as bound to SQLite."""
+        if value is None:
+            return None
+        if self.kind == "json":
+            return dumps(value)
+        if self.kind == "real":
+            value = float(value)
+            return value if math.isfinite(value) else None
+        if self.kind == "bool":
+            return int(bool(value))
+        if self.kind == "int":
+            return int(value)
+        return str(value)
+
+    def from_db(self, value):
+        """The stored value as the dataclass holds it."""
+        if value is None:
+            return None
+        if self.kind == "json":
+            return json.loads(value)
+        if self.kind == "bool":
+            return bool(value)
+        return value
+
+
+def _columns(spec: str) -> tuple[Column, ...]:
+    """Parse ``"name:kind[!]"`` words; ``!`` marks NOT NULL."""
+    cols = []
+    for word in spec.split():
+        name, kind = word.split(":")
+        cols.append(Column(name, kind.rstrip("!"), kind.endswith("!")))
+    return tuple(cols)
+
+
+RUN_COLUMNS = _columns("""
+    run_id:text! started_at:text! command:text! suite:text cases:json! methods:json! options:json!
+    encoding:text! threshold_mha:real! threshold_source:text! seed:int! packages:json! git:json!
+    plugin_git:json! machine:json! finished_at:text status:text! summary:json!
+""")
+
+RESULT_COLUMNS = _columns("""
+    run_id:text! task_key:text! case:text! basis:text! encoding:text! method:text! options:json!
+    status:text! verdict:text! energy_ha:real stderr_ha:real reference_method:text
+    reference_energy_ha:real error_mha:real threshold_mha:real! converged:bool iterations:int
+    seconds:real! message:text! n_qubits:int n_terms:int one_norm_ha:real qwc_groups:int
+    resources:json! metadata:json! parameters:json secondary:json! space:text! tags:json!
+    scan_parent:text scan_length:real scf:json! finished_at:text!
+""")
+
+
+def to_db_values(record, columns: tuple[Column, ...]) -> tuple:
+    """The record's fields in column order, converted for SQLite."""
+    return tuple(col.to_db(getattr(record, col.name)) for col in columns)
+
+
+def from_db_values(cls, columns: tuple[Column, ...], values) -> object:
+    """Rebuild a record of ``cls`` from a row whose values are in column order."""
+    return cls(**{col.name: col.from_db(v) for col, v in zip(columns, values)})
