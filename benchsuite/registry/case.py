@@ -16,7 +16,7 @@ Conventions
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -104,7 +104,7 @@ class Case:
     scan_parent: str | None = None
     scan_length: float | None = None
     notes: str = ""
-    extra: dict = field(default_factory=dict, compare=False, hash=False)
+    threshold_mha: float | None = None
 
     @property
     def n_electrons(self) -> int:

@@ -34,7 +34,7 @@ NAME_PATTERN = re.compile(r"^[a-z0-9]+(-[a-z0-9]+)*$")
 
 REQUIRED = ("name", "title", "units", "charge", "multiplicity", "atoms", "basis", "tags",
             "geometry_source")
-OPTIONAL = ("frozen_core", "active_space", "scan", "reference", "notes")
+OPTIONAL = ("frozen_core", "active_space", "scan", "reference", "notes", "threshold_mha")
 REFERENCE_FIELDS = {"method", "basis", "energy_ha", "source", "note", "from_memory"}
 
 
@@ -260,6 +260,11 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
         raise InputError("give either frozen_core or active_space: an active space already "
                          "freezes every orbital below it", path, "frozen_core")
     scan = _parse_scan(raw["scan"], path, len(symbols)) if "scan" in raw else None
+    threshold = None
+    if "threshold_mha" in raw:
+        threshold = check_number(raw["threshold_mha"], path, "threshold_mha")
+        if threshold <= 0:
+            raise InputError("must be positive", path, "threshold_mha")
 
     common = dict(
         title=check_type(raw["title"], str, path, "title", "a string"),
@@ -268,6 +273,7 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
         path=path, frozen_core=frozen, active_space=active,
         published=_parse_published(raw.get("reference", []), path, bib_keys),
         notes=check_type(raw.get("notes", ""), str, path, "notes", "a string"),
+        threshold_mha=threshold,
     )
     if scan is None:
         _check_distances(symbols, coords, units, path, "atoms")
