@@ -1,1 +1,1 @@
-"""report"""
+"""Reports from stored runs: gate outputs (JSON, JUnit), progress, the HTML report, citable tables."""

@@ -1,0 +1,534 @@
+"""The one-file HTML report of a stored run.
+
+Three stages, each testable on its own:
+
+1. **collect** -- :func:`collect_report` reads the run record and its result
+   rows from the store (and the bibliography from the registry) into plain
+   dataclasses, :class:`ReportData`: the headline, one table per method, the
+   heat map matrix, the scans, the reference ladders, resources, provenance
+   and bibliography.  :func:`build_report` does the same from records already
+   in hand.
+2. **compare** -- done while collecting, from stored numbers only: gate
+   verdict and counts, :func:`benchsuite.scoring.method_statistics` per
+   method, :func:`benchsuite.scoring.curve_statistics` per scan and method,
+   each rung's deviation from the primary reference, the heat map band of
+   every error relative to its threshold.
+3. **render** -- :func:`render_html` turns a :class:`ReportData` into one
+   self-contained page: jinja2 with autoescape, CSS and a small vanilla
+   script inline, plots as inline SVG (:mod:`benchsuite.report.plots`), a
+   Content-Security-Policy that forbids every fetch, no external URL anywhere
+   outside the bibliography's plain text.
+
+Verdicts are always spelled out (``PASS``, ``FAIL``, ...) with a symbol;
+colour only repeats what the text says.  Units: Eh for energies, mEh for
+errors, thresholds and sigma, s for times.  No PySCF, no OpenFermion.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from benchsuite.report.gate import is_failing
+from benchsuite.report.tables import format_number, results_hash, row_citations
+from benchsuite.scoring import VERDICTS, CurveStatistics, MethodStatistics, curve_statistics, method_statistics
+
+TEMPLATE_DIR = Path(__file__).with_name("templates")
+
+#: verdict -> (label, symbol); the label is what a reader sees, the symbol a reminder.
+VERDICT_LABELS = {
+    "pass": ("PASS", "✓"), "fail": ("FAIL", "✗"), "below-exact": ("BELOW EXACT", "▼"),
+    "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"), "timeout": ("TIMEOUT", "⌛"),
+    "invalid": ("INVALID", "⊘"),
+}
+#: Rungs in ladder order; any other rung (UHF-based ones) follows, the primary last.
+RUNG_ORDER = ("hf", "mp2", "ccsd", "ccsd(t)")
+PRIMARY_RUNGS = ("fci", "casci")
+
+
+# -- the collected data ------------------------------------------------------------------
+
+@dataclass
+class TaskRow:
+    """One task as the method tables show it."""
+
+    task_key: str
+    case: str
+    basis: str
+    encoding: str
+    space: str
+    method: str
+    n_qubits: int | None
+    n_terms: int | None
+    energy_ha: float | None
+    reference_energy_ha: float | None
+    reference_method: str | None
+    error_mha: float | None
+    sigma_mha: float | None
+    threshold_mha: float
+    verdict: str
+    status: str
+    seconds: float
+    tags: list[str]
+    message: str
+    scan_parent: str | None = None
+    scan_length: float | None = None
+    sources: list[str] = field(default_factory=list)
+
+
+@dataclass
+class MethodSummary:
+    method: str
+    counts: dict[str, int]
+    stats: MethodStatistics
+    n_failing: int
+    stochastic: bool
+    worst: tuple | None = None      # (case, basis, error_mha, verdict) of the largest |error|, any status
+
+
+@dataclass
+class MethodTable:
+    summary: MethodSummary
+    rows: list[TaskRow]
+    show_sigma: bool
+    show_threshold: bool
+    encodings: list[str] = field(default_factory=list)
+
+    @property
+    def show_encoding(self) -> bool:
+        """One column per row only when the table mixes encodings; otherwise named above it."""
+        return len(self.encodings) > 1
+
+
+@dataclass
+class HeatCell:
+    error_mha: float | None
+    verdict: str
+    band: str
+
+
+@dataclass
+class HeatRow:
+    label: str
+    case: str
+    basis: str
+    encoding: str
+    cells: list[HeatCell | None]
+
+
+@dataclass
+class HeatMap:
+    methods: list[str]
+    rows: list[HeatRow]
+
+
+@dataclass
+class ScanSeries:
+    method: str
+    lengths: list[float]
+    energies: list[float]
+    errors: list[float | None]
+    sigmas_mha: list[float | None]
+    verdicts: list[str]
+    stats: CurveStatistics | None
+
+
+@dataclass
+class ScanData:
+    name: str
+    basis: str
+    encoding: str
+    reference_method: str | None
+    lengths: list[float]
+    reference_energies: list[float]
+    series: list[ScanSeries]
+    threshold_mha: float
+    svg: str = ""
+
+
+@dataclass
+class Rung:
+    method: str
+    energy_ha: float | None
+    status: str
+    delta_mha: float | None        # 1000 (E_rung - E_primary)
+
+
+@dataclass
+class Published:
+    method: str
+    basis: str
+    energy_ha: float
+    source: str
+    from_memory: bool
+    delta_mha: float | None         # 1000 (E_published - E_primary)
+
+
+@dataclass
+class Ladder:
+    case: str
+    basis: str
+    space: str
+    scf_method: str | None
+    scf_converged: bool | None
+    scf_stable: bool | None
+    scf_flags: list[str]
+    primary: str | None
+    primary_energy_ha: float | None
+    rungs: list[Rung]
+    published: list[Published]
+
+    def rung(self, name: str) -> Rung | None:
+        return next((r for r in self.rungs if r.method == name), None)
+
+
+@dataclass
+class ResourceRow:
+    case: str
+    basis: str
+    encoding: str
+    method: str
+    verdict: str
+    tags: list[str]
+    n_qubits: int | None
+    n_terms: int | None
+    one_norm_ha: float | None
+    qwc_groups: int | None
+    n_parameters: int | None
+    two_qubit_gates: int | None
+    circuit_depth: int | None
+    shots: int | None
+
+
+@dataclass
+class Citation:
+    key: str
+    text: str
+    locators: list[str]        # doi / url as plain text, never links
+    raw: str
+    uses: list[str]
+    found: bool
+
+
+@dataclass
+class Provenance:
+    run_id: str
+    status: str
+    started_at: str
+    finished_at: str | None
+    command: str
+    suite: str | None
+    cases: list[str]
+    methods: list[str]
+    options: dict
+    encoding: str
+    threshold_mha: float
+    threshold_source: str
+    seed: int
+    packages: dict
+    git: dict
+    plugin_git: dict
+    machine: dict
+    results_hash: str
+
+
+@dataclass
+class ReportData:
+    title: str
+    run_id: str
+    gate_passed: bool
+    n_tasks: int
+    n_failing: int
+    counts: dict[str, int]
+    threshold_mha: float
+    threshold_source: str
+    summaries: list[MethodSummary]
+    tables: list[MethodTable]
+    heatmap: HeatMap
+    scans: list[ScanData]
+    ladders: list[Ladder]
+    resources: list[ResourceRow]
+    provenance: Provenance
+    bibliography: list[Citation]
+    tags: list[str]
+    verdicts: list[str]
+    ladder_rungs: list[str] = field(default_factory=list)
+
+
+# -- collect and compare -----------------------------------------------------------------
+
+def collect_report(store, run_id: str, registry=None, title: str | None = None) -> ReportData:
+    """Everything the report shows, from the stored run ``run_id`` (a full id)."""
+    return build_report(store.get_run(run_id), store.results(run_id), registry, title)
+
+
+def _scored(row) -> float | None:
+    return row.error_mha if row.status == "ok" else None
+
+
+def _counts(verdicts) -> dict[str, int]:
+    verdicts = list(verdicts)
+    return {v: verdicts.count(v) for v in VERDICTS if v in verdicts}
+
+
+def build_report(run, rows, registry=None, title: str | None = None) -> ReportData:
+    """:class:`ReportData` from a :class:`RunRecord` and its :class:`ResultRow` list."""
+    rows = sorted(rows, key=lambda r: (r.method, r.scan_parent or r.case, r.scan_length or 0.0, r.case,
+                                       r.basis, r.encoding, r.task_key))
+    method_order = list(dict.fromkeys(list(run.methods) + [r.method for r in rows]))
+    by_method = {m: [r for r in rows if r.method == m] for m in method_order}
+    by_method = {m: items for m, items in by_method.items() if items}
+    summaries, tables = [], []
+    for method, items in by_method.items():
+        summary = MethodSummary(
+            method=method, counts=_counts(r.verdict for r in items),
+            stats=method_statistics(method, [_scored(r) for r in items], [r.verdict for r in items]),
+            n_failing=sum(is_failing(r.verdict) for r in items),
+            stochastic=any(r.stderr_ha is not None for r in items), worst=_worst(items))
+        summaries.append(summary)
+        tables.append(MethodTable(summary=summary, rows=[_task_row(r, registry) for r in items],
+                                  show_sigma=summary.stochastic,
+                                  show_threshold=any(abs(r.threshold_mha - run.threshold_mha) > 1e-12
+                                                     for r in items),
+                                  encodings=list(dict.fromkeys(r.encoding for r in items))))
+    failing = run.summary.get("failing") if run.summary else None
+    n_failing = failing if isinstance(failing, int) else sum(is_failing(r.verdict) for r in rows)
+    return ReportData(
+        title=title or f"benchsuite report: run {run.run_id}",
+        run_id=run.run_id, gate_passed=bool(rows) and n_failing == 0, n_tasks=len(rows), n_failing=n_failing,
+        counts=_counts(r.verdict for r in rows), threshold_mha=run.threshold_mha,
+        threshold_source=run.threshold_source, summaries=summaries, tables=tables,
+        heatmap=_heatmap(rows, list(by_method)), scans=_scans(rows, run.threshold_mha),
+        ladders=(ladders := _ladders(rows)), ladder_rungs=_ladder_columns(ladders), resources=[_resource_row(r) for r in rows],
+        provenance=_provenance(run, rows), bibliography=_bibliography(rows, registry),
+        tags=sorted({t for r in rows for t in r.tags}), verdicts=[v for v in VERDICTS if any(r.verdict == v for r in rows)])
+
+
+def _worst(items) -> tuple | None:
+    scored = [r for r in items if r.error_mha is not None]
+    if not scored:
+        return None
+    r = max(scored, key=lambda r: abs(r.error_mha))
+    return (r.case, r.basis, r.error_mha, r.verdict)
+
+
+def _task_row(r, registry) -> TaskRow:
+    return TaskRow(task_key=r.task_key, case=r.case, basis=r.basis, encoding=r.encoding, space=r.space,
+                   method=r.method, n_qubits=r.n_qubits, n_terms=r.n_terms, energy_ha=r.energy_ha,
+                   reference_energy_ha=r.reference_energy_ha, reference_method=r.reference_method,
+                   error_mha=r.error_mha, sigma_mha=None if r.stderr_ha is None else 1000.0 * r.stderr_ha,
+                   threshold_mha=r.threshold_mha, verdict=r.verdict, status=r.status, seconds=r.seconds,
+                   tags=list(r.tags), message=r.message.strip(), scan_parent=r.scan_parent,
+                   scan_length=r.scan_length, sources=row_citations(r, registry))
+
+
+def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> str:
+    """CSS band of a heat-map cell: how far |error| lies inside or outside the threshold."""
+    if verdict == "below-exact":
+        return "below"
+    if error_mha is None or verdict in ("error", "timeout", "invalid"):
+        return "none"
+    ratio = abs(error_mha) / threshold_mha
+    if ratio <= 0.1:
+        return "in0"
+    if ratio <= 1.0:
+        return "in1"
+    return "out" + str(min(3, 1 + int(math.log10(ratio))))
+
+
+def _task_label(case: str, basis: str, encoding: str, several_encodings: bool) -> str:
+    return f"{case} [{basis}" + (f", {encoding}]" if several_encodings else "]")
+
+
+def _heatmap(rows, methods: list[str]) -> HeatMap:
+    several = len({r.encoding for r in rows}) > 1
+    keys = list(dict.fromkeys(sorted(((r.scan_parent or r.case, r.scan_length or 0.0, r.case), r.basis, r.encoding)
+                                     for r in rows)))
+    cells = {(r.case, r.basis, r.encoding, r.method): r for r in rows}
+    out = []
+    for (_, _, case), basis, enc in keys:
+        line = []
+        for m in methods:
+            r = cells.get((case, basis, enc, m))
+            line.append(None if r is None else HeatCell(r.error_mha, r.verdict,
+                                                        heat_band(r.error_mha, r.threshold_mha, r.verdict)))
+        out.append(HeatRow(_task_label(case, basis, enc, several), case, basis, enc, line))
+    return HeatMap(methods, out)
+
+
+def _scans(rows, threshold_mha: float) -> list[ScanData]:
+    groups: dict[tuple, list] = {}
+    for r in rows:
+        if r.scan_parent and r.scan_length is not None:
+            groups.setdefault((r.scan_parent, r.basis, r.encoding), []).append(r)
+    scans = []
+    for (name, basis, enc), items in sorted(groups.items()):
+        refs = {}
+        for r in items:
+            if r.reference_energy_ha is not None:
+                refs.setdefault(r.scan_length, (r.reference_energy_ha, r.reference_method))
+        lengths = sorted(refs)
+        series = []
+        for method in dict.fromkeys(r.method for r in items):
+            pts = sorted((r for r in items if r.method == method and r.energy_ha is not None),
+                         key=lambda r: r.scan_length)
+            if not pts:
+                continue
+            series.append(ScanSeries(
+                method=method, lengths=[r.scan_length for r in pts], energies=[r.energy_ha for r in pts],
+                errors=[r.error_mha for r in pts],
+                sigmas_mha=[None if r.stderr_ha is None else 1000.0 * r.stderr_ha for r in pts],
+                verdicts=[r.verdict for r in pts],
+                stats=curve_statistics(name, [_scored(r) for r in pts])))
+        thresholds = {r.threshold_mha for r in items}
+        scans.append(ScanData(
+            name=name, basis=basis, encoding=enc,
+            reference_method=next((refs[x][1] for x in lengths), None), lengths=lengths,
+            reference_energies=[refs[x][0] for x in lengths], series=series,
+            threshold_mha=thresholds.pop() if len(thresholds) == 1 else threshold_mha))
+    return scans
+
+
+def _rung_sort_key(name: str) -> tuple:
+    if name in RUNG_ORDER:
+        return (0, RUNG_ORDER.index(name), name)
+    return (2 if name in PRIMARY_RUNGS else 1, 0, name)
+
+
+def _delta(energy, primary) -> float | None:
+    return None if energy is None or primary is None else 1000.0 * (energy - primary)
+
+
+def _ladders(rows) -> list[Ladder]:
+    """One ladder per (case, basis) from the first row that carries one (every method shares it)."""
+    seen: dict[tuple, Ladder] = {}
+    for r in sorted(rows, key=lambda r: (r.scan_parent or r.case, r.scan_length or 0.0, r.case, r.basis)):
+        key = (r.case, r.basis)
+        rungs = (r.secondary or {}).get("rungs") or {}
+        if key in seen and (seen[key].rungs or not rungs):
+            continue
+        primary = r.reference_energy_ha
+        seen[key] = Ladder(
+            case=r.case, basis=r.basis, space=r.space, scf_method=(r.scf or {}).get("method"),
+            scf_converged=(r.scf or {}).get("converged"), scf_stable=(r.scf or {}).get("stable"),
+            scf_flags=list((r.scf or {}).get("flags") or []), primary=r.reference_method,
+            primary_energy_ha=primary,
+            rungs=[Rung(name, v.get("energy_ha"), v.get("status", ""), _delta(v.get("energy_ha"), primary))
+                   for name, v in sorted(rungs.items(), key=lambda kv: _rung_sort_key(kv[0]))],
+            published=[Published(p.get("method", ""), p.get("basis", r.basis), p["energy_ha"], p.get("source", ""),
+                                 bool(p.get("from_memory")), _delta(p["energy_ha"], primary))
+                       for p in (r.secondary or {}).get("published") or [] if p.get("energy_ha") is not None])
+    return list(seen.values())
+
+
+def _ladder_columns(ladders) -> list[str]:
+    """Rungs that are not the primary reference of their ladder, in ladder order."""
+    names = {r.method for lad in ladders for r in lad.rungs if r.method != lad.primary}
+    return sorted(names, key=_rung_sort_key)
+
+
+def _resource_row(r) -> ResourceRow:
+    res = r.resources or {}
+    return ResourceRow(case=r.case, basis=r.basis, encoding=r.encoding, method=r.method, verdict=r.verdict,
+                       tags=list(r.tags), n_qubits=r.n_qubits, n_terms=r.n_terms, one_norm_ha=r.one_norm_ha,
+                       qwc_groups=r.qwc_groups, n_parameters=res.get("n_parameters"),
+                       two_qubit_gates=res.get("two_qubit_gates"), circuit_depth=res.get("circuit_depth"),
+                       shots=res.get("shots"))
+
+
+def _provenance(run, rows) -> Provenance:
+    return Provenance(run_id=run.run_id, status=run.status, started_at=run.started_at, finished_at=run.finished_at,
+                      command=run.command, suite=run.suite, cases=list(run.cases), methods=list(run.methods),
+                      options=dict(run.options), encoding=run.encoding, threshold_mha=run.threshold_mha,
+                      threshold_source=run.threshold_source, seed=run.seed, packages=dict(run.packages),
+                      git=dict(run.git or {}), plugin_git=dict(run.plugin_git or {}), machine=dict(run.machine or {}),
+                      results_hash=results_hash(rows))
+
+
+def citation_text(entry) -> str:
+    """'Authors, title, journal volume, pages (year).' from a bib entry's fields."""
+    f = entry.fields
+    parts = [f.get(k) for k in ("author", "title") if f.get(k)]
+    where = " ".join(x for x in (f.get("journal") or f.get("booktitle") or f.get("publisher") or f.get("howpublished"),
+                                 f.get("volume")) if x)
+    if where:
+        parts.append(where)
+    if f.get("pages"):
+        parts.append(f["pages"].replace("--", "–"))
+    text = ", ".join(p.replace("{", "").replace("}", "") for p in parts)
+    return f"{text} ({f.get('year', 'n.d.')})."
+
+
+def _bibliography(rows, registry) -> list[Citation]:
+    uses: dict[str, list[str]] = {}
+
+    def cite(key, what):
+        uses.setdefault(key, [])
+        if what not in uses[key]:
+            uses[key].append(what)
+
+    for r in sorted(rows, key=lambda r: (r.scan_parent or r.case, r.scan_length or 0.0, r.case)):
+        case = None if registry is None else registry.cases.get(r.case)
+        if case is not None and case.geometry_source:
+            cite(case.geometry_source, f"geometry of {r.case}")
+        for p in (r.secondary or {}).get("published") or []:
+            if p.get("source"):
+                cite(p["source"], f"published {p.get('method', '?')} energy of {r.case} [{p.get('basis', r.basis)}]")
+    out = []
+    for key, what in uses.items():
+        entry = None if registry is None else registry.bib.get(key)
+        if entry is None:
+            out.append(Citation(key, "(entry not found in the loaded sources.bib)", [], "", what, False))
+            continue
+        locators = [f"{k}: {entry.fields[k]}" for k in ("doi", "url") if entry.fields.get(k)]
+        out.append(Citation(key, citation_text(entry), locators, entry.raw, what, True))
+    return out
+
+
+# -- render ------------------------------------------------------------------------------
+
+def _environment():
+    import jinja2
+
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(TEMPLATE_DIR)), autoescape=True,
+                             undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
+    env.filters["num"] = _num
+    env.filters["dataval"] = lambda x: "" if x is None else repr(float(x)) if isinstance(x, float) else str(x)
+    env.globals["VERDICT_LABELS"] = VERDICT_LABELS
+    env.globals["is_failing"] = is_failing
+    return env
+
+
+def _num(x, spec: str = ".6f", missing: str = "—") -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return missing
+    return format_number(x, spec).replace("-", "−")
+
+
+def render_html(data: ReportData) -> str:
+    """The page as one string; scans get their SVG here (never carried in from outside)."""
+    from markupsafe import Markup
+
+    from benchsuite.report.plots import scan_svg
+
+    for n, scan in enumerate(data.scans):
+        scan.svg = Markup(scan_svg(scan, salt=f"{data.run_id}-scan{n}"))
+    return _environment().get_template("report.html.j2").render(d=data)
+
+
+def write_report(store, run_id: str, out_path, registry=None, title: str | None = None) -> Path:
+    """Collect, render and write the report atomically; returns the path written."""
+    html = render_html(collect_report(store, run_id, registry, title))
+    out = Path(out_path)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=out.parent, prefix=out.name + ".", suffix=".tmp")
+    with os.fdopen(fd, "w", encoding="utf-8") as fh:
+        fh.write(html)
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)          # mkstemp makes 0600; a report is for sharing
+    os.replace(tmp, out)
+    return out

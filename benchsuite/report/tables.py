@@ -1,0 +1,290 @@
+"""Publication tables of a stored run: LaTeX (booktabs), Markdown (pipe table) and CSV.
+
+Every table carries what a reader needs to cite and reproduce it:
+
+* units in the column headers (energies in Eh, errors and sigma in mEh, times in s);
+* the pass threshold and its source;
+* the reference rung of each row (``fci`` or ``casci``);
+* citation keys from ``sources.bib`` for each row: the case's geometry source
+  and the sources of its published values (``\\cite{key}`` in LaTeX, ``[@key]``
+  in Markdown, the bare keys in CSV);
+* the run id and a short content hash of the run's results
+  (:func:`results_hash`), so two tables built from the same results carry the
+  same hash and any changed energy, error or verdict changes it.
+
+CSV values are raw, at full precision (``repr``), missing ones empty:
+``pandas.read_csv(path, float_precision="round_trip")`` gives back the
+stored floats exactly.
+
+``--bib FILE`` writes the cited BibTeX entries verbatim (:func:`bibtex_for`).
+
+Plain records in (:class:`~benchsuite.store.records.ResultRow`), text out:
+no PySCF, no OpenFermion.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import re
+from dataclasses import dataclass
+from typing import Callable
+
+from benchsuite.errors import InputError
+from benchsuite.store.records import dumps
+
+FORMATS = ("latex", "markdown", "csv")
+
+
+# -- identity and citations ---------------------------------------------------------
+
+def results_hash(rows) -> str:
+    """First 12 hex digits of the SHA-256 of the canonical JSON of the results.
+
+    Over ``[task_key, energy_ha, error_mha, verdict]`` of every row, sorted by
+    task key, so row order and everything else about the run (timings,
+    machine) leave it unchanged.
+    """
+    items = sorted([r.task_key, r.energy_ha, r.error_mha, r.verdict] for r in rows)
+    return hashlib.sha256(dumps(items).encode()).hexdigest()[:12]
+
+
+def row_citations(row, registry=None) -> list[str]:
+    """Bib keys a row rests on: the case's geometry source, then its published values' sources."""
+    keys = []
+    case = None if registry is None else registry.cases.get(row.case)
+    if case is not None and case.geometry_source:
+        keys.append(case.geometry_source)
+    for pub in (row.secondary or {}).get("published") or []:
+        if pub.get("source"):
+            keys.append(pub["source"])
+    return list(dict.fromkeys(keys))
+
+
+def cited_keys(rows, registry=None) -> list[str]:
+    """Every key cited by ``rows``, in order of first citation."""
+    return list(dict.fromkeys(k for r in rows for k in row_citations(r, registry)))
+
+
+def bibtex_for(keys, registry) -> str:
+    """The BibTeX entries of ``keys`` verbatim; a key the registry lacks is named in a comment."""
+    out = ["% BibTeX entries cited by a benchsuite table", ""]
+    for key in keys:
+        entry = None if registry is None else registry.bib.get(key)
+        out += [entry.raw if entry is not None else f"% {key}: not found in the loaded sources.bib", ""]
+    return "\n".join(out)
+
+
+# -- escaping ---------------------------------------------------------------------------
+
+_LATEX_SPECIAL = {
+    "\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
+    "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
+    "<": r"\textless{}", ">": r"\textgreater{}", "|": r"\textbar{}",
+}
+_LATEX_TABLE = str.maketrans(_LATEX_SPECIAL)
+_CITE_KEY = re.compile(r"[A-Za-z0-9_:.+/\-]+")
+_MARKDOWN_SPECIAL = str.maketrans({c: "\\" + c for c in "\\`*_[]<>|&~$"})
+
+
+def latex_escape(text) -> str:
+    """``text`` with every LaTeX special character made literal; newlines become spaces."""
+    return " ".join(str(text).split("\n")).translate(_LATEX_TABLE)
+
+
+def markdown_escape(text) -> str:
+    """``text`` safe inside one pipe-table cell (backslash escapes, one line)."""
+    return " ".join(str(text).split("\n")).translate(_MARKDOWN_SPECIAL)
+
+
+def format_number(x, spec: str) -> str:
+    """``format(x, spec)``, except that a value printing as zero carries no sign ("0.000", not "-0.000")."""
+    text = format(x, spec)
+    if isinstance(x, float) and text.strip("+-0.") == "":
+        text = text.lstrip("+-")
+    return text
+
+
+# -- columns -------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class TableColumn:
+    """One column: ``header`` (plain, with its unit), ``latex`` header, alignment,
+    the raw value of a row and its printed form (``fmt``, for LaTeX and Markdown)."""
+
+    name: str
+    header: str
+    latex: str
+    align: str
+    value: Callable
+    fmt: str | None = None          # format spec for numbers; None: text
+    number: bool = False
+
+
+def _res(key):
+    return lambda r, cites, ctx: (r.resources or {}).get(key)
+
+
+def _mha(x):
+    return None if x is None else 1000.0 * x
+
+
+COLUMNS: dict[str, TableColumn] = {c.name: c for c in (
+    TableColumn("case", "case", "Case", "l", lambda r, c, x: r.case),
+    TableColumn("basis", "basis", "Basis", "l", lambda r, c, x: r.basis),
+    TableColumn("encoding", "encoding", "Encoding", "l", lambda r, c, x: r.encoding),
+    TableColumn("space", "orbital space", "Space", "l", lambda r, c, x: r.space),
+    TableColumn("method", "method", "Method", "l", lambda r, c, x: r.method),
+    TableColumn("qubits", "qubits", "Qubits", "r", lambda r, c, x: r.n_qubits, "d", True),
+    TableColumn("terms", "Pauli terms", "Pauli terms", "r", lambda r, c, x: r.n_terms, "d", True),
+    TableColumn("energy", "E_method / Eh", r"$E_\mathrm{method}$ / $E_\mathrm{h}$", "r",
+                lambda r, c, x: r.energy_ha, ".6f", True),
+    TableColumn("sigma", "sigma / mEh", r"$\sigma$ / m$E_\mathrm{h}$", "r",
+                lambda r, c, x: _mha(r.stderr_ha), ".3f", True),
+    TableColumn("reference", "E_reference / Eh", r"$E_\mathrm{ref}$ / $E_\mathrm{h}$", "r",
+                lambda r, c, x: r.reference_energy_ha, ".6f", True),
+    TableColumn("rung", "reference rung", "Reference", "l", lambda r, c, x: r.reference_method),
+    TableColumn("error", "error / mEh", r"Error / m$E_\mathrm{h}$", "r", lambda r, c, x: r.error_mha, "+.3f", True),
+    TableColumn("threshold", "threshold / mEh", r"Threshold / m$E_\mathrm{h}$", "r",
+                lambda r, c, x: r.threshold_mha, ".4f", True),
+    TableColumn("verdict", "verdict", "Verdict", "l", lambda r, c, x: r.verdict),
+    TableColumn("seconds", "time / s", "Time / s", "r", lambda r, c, x: r.seconds, ".2f", True),
+    TableColumn("one_norm", "1-norm / Eh", r"1-norm / $E_\mathrm{h}$", "r", lambda r, c, x: r.one_norm_ha,
+                ".3f", True),
+    TableColumn("groups", "QWC groups", "QWC groups", "r", lambda r, c, x: r.qwc_groups, "d", True),
+    TableColumn("parameters", "parameters", "Parameters", "r", _res("n_parameters"), "d", True),
+    TableColumn("two_qubit_gates", "two-qubit gates", "Two-qubit gates", "r", _res("two_qubit_gates"), "d", True),
+    TableColumn("depth", "circuit depth", "Depth", "r", _res("circuit_depth"), "d", True),
+    TableColumn("shots", "shots", "Shots", "r", _res("shots"), "d", True),
+    TableColumn("sources", "sources (bib keys)", "Sources", "l", lambda r, c, x: " ".join(c)),
+    TableColumn("task_key", "task key", "Task", "l", lambda r, c, x: r.task_key),
+    TableColumn("run", "run id", "Run", "l", lambda r, c, x: x["run_id"]),
+    TableColumn("results_hash", "results sha256[:12]", "Results hash", "l", lambda r, c, x: x["hash"]),
+)}
+
+DEFAULT_COLUMNS = ("case", "basis", "method", "qubits", "energy", "reference", "rung", "error", "verdict",
+                   "sources")
+#: A CSV row stands alone, so it also carries its threshold and the run's identity.
+DEFAULT_CSV_COLUMNS = DEFAULT_COLUMNS + ("threshold", "run", "results_hash")
+
+
+def parse_columns(spec: str | None, fmt: str) -> list[TableColumn]:
+    """``--columns a,b,c`` (or the format's default) as columns; unknown names are input errors."""
+    if spec is None:
+        names = list(DEFAULT_CSV_COLUMNS if fmt == "csv" else DEFAULT_COLUMNS)
+    else:
+        names = [n.strip() for n in spec.split(",") if n.strip()]
+    unknown = [n for n in names if n not in COLUMNS]
+    if unknown or not names:
+        raise InputError(f"unknown column(s) {unknown or spec!r}; choose from {', '.join(COLUMNS)}",
+                         field="--columns")
+    return [COLUMNS[n] for n in dict.fromkeys(names)]
+
+
+# -- the table --------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Table:
+    """What every format prints: header data, the columns and one value list per row."""
+
+    run_id: str
+    results_hash: str
+    threshold_mha: float
+    threshold_source: str
+    thresholds_differ: bool
+    columns: list[TableColumn]
+    values: list[list]
+    cites: list[list[str]]
+    keys: list[str]
+
+
+def build_table(run, rows, columns: list[TableColumn], registry=None) -> Table:
+    """The rows in table order (method, case, basis, encoding) with every column's raw value."""
+    rows = sorted(rows, key=lambda r: (r.method, r.case, r.basis, r.encoding, r.task_key))
+    ctx = {"run_id": run.run_id, "hash": results_hash(rows)}
+    cites = [row_citations(r, registry) for r in rows]
+    values = [[col.value(r, c, ctx) for col in columns] for r, c in zip(rows, cites)]
+    return Table(run_id=run.run_id, results_hash=ctx["hash"], threshold_mha=run.threshold_mha,
+                 threshold_source=run.threshold_source,
+                 thresholds_differ=any(abs(r.threshold_mha - run.threshold_mha) > 1e-12 for r in rows),
+                 columns=columns, values=values, cites=cites, keys=list(dict.fromkeys(k for c in cites for k in c)))
+
+
+def _text(col: TableColumn, value) -> str:
+    if value is None or value == "":
+        return "--" if col.number else ""
+    if col.fmt and isinstance(value, (int, float)) and not isinstance(value, bool):
+        return format_number(value, col.fmt)
+    return str(value)
+
+
+def _caption(t: Table, escape: Callable[[str], str], le: str) -> str:
+    per_row = " (a case or suite threshold differs on some rows: see their threshold)" if t.thresholds_differ else ""
+    return (escape("Energies against the FCI/CASCI reference in the same orbital space; pass if |error| ") + le
+            + escape(f" {t.threshold_mha:.4f} mEh ({t.threshold_source}){per_row}. "
+                     f"benchsuite run {t.run_id}, results hash {t.results_hash}."))
+
+
+def render_latex(t: Table) -> str:
+    """A ``table`` environment with a booktabs ``tabular`` (needs ``\\usepackage{booktabs}``)."""
+    def cell(col, value, cites):
+        if col.name == "sources":
+            return ", ".join(rf"\cite{{{k}}}" if _CITE_KEY.fullmatch(k) else latex_escape(k) for k in cites)
+        text = _text(col, value)
+        if col.number and text not in ("", "--"):
+            return f"${text}$"
+        return latex_escape(text)
+
+    caption = _caption(t, latex_escape, r"$\le$")
+    lines = [f"% benchsuite table: run {latex_escape(t.run_id)}, results hash {t.results_hash}",
+             r"% needs \usepackage{booktabs}",
+             r"\begin{table}", r"\centering",
+             rf"\caption{{{caption}}}",
+             rf"\label{{tab:benchsuite-{t.results_hash}}}",
+             rf"\begin{{tabular}}{{{''.join(c.align for c in t.columns)}}}",
+             r"\toprule",
+             " & ".join(c.latex for c in t.columns) + r" \\",
+             r"\midrule"]
+    for values, cites in zip(t.values, t.cites):
+        lines.append(" & ".join(cell(c, v, cites) for c, v in zip(t.columns, values)) + r" \\")
+    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}", ""]
+    return "\n".join(lines)
+
+
+def render_markdown(t: Table) -> str:
+    """A pipe table (GitHub / pandoc), its caption as a pandoc ``Table:`` line before it."""
+    def cell(col, value, cites):
+        if col.name == "sources":
+            return "; ".join(f"[@{k}]" if _CITE_KEY.fullmatch(k) else markdown_escape(k) for k in cites)
+        return markdown_escape(_text(col, value))
+
+    def line(cells):
+        return "| " + " | ".join(cells) + " |"
+
+    out = [f"Table: {_caption(t, markdown_escape, '≤')}", "",
+           line([markdown_escape(c.header) for c in t.columns]),
+           line([":---" if c.align == "l" else "---:" for c in t.columns])]
+    out += [line([cell(c, v, cites) for c, v in zip(t.columns, values)]) for values, cites in zip(t.values, t.cites)]
+    return "\n".join(out) + "\n"
+
+
+def render_csv(t: Table) -> str:
+    """Header row (names with units), then raw values at full precision; empty = missing."""
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow([c.header for c in t.columns])
+    for values in t.values:
+        writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in values])
+    return buf.getvalue()
+
+
+RENDERERS = {"latex": render_latex, "markdown": render_markdown, "csv": render_csv}
+
+
+def render_table(run, rows, fmt: str, columns: str | None = None, registry=None) -> tuple[str, Table]:
+    """The table as text in ``fmt`` and the :class:`Table` it came from."""
+    if fmt not in RENDERERS:
+        raise InputError(f"unknown table format {fmt!r}; choose one of {', '.join(FORMATS)}", field="--format")
+    table = build_table(run, rows, parse_columns(columns, fmt), registry)
+    return RENDERERS[fmt](table), table

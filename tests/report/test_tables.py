@@ -1,0 +1,149 @@
+"""Publication tables: LaTeX (booktabs, escaped), Markdown pipe table, CSV through pandas."""
+
+from __future__ import annotations
+
+import argparse
+import io
+import re
+
+import pandas as pd
+import pytest
+
+from benchsuite.errors import InputError
+from benchsuite.report.command import add_table_arguments, run_table
+from benchsuite.report.tables import COLUMNS, latex_escape, render_table, results_hash
+from tests.report import make_row, make_run, store_with
+
+SPECIAL_METHOD = r"vqe_50% & $5 #1 {a} ~b ^c \d <e> |f"
+PUBLISHED = [{"method": "fci", "basis": "sto-3g", "energy_ha": -1.1373, "source": "szabo-ostlund-1996",
+              "from_memory": True, "error_mha": 0.0}]
+
+
+def _rows(run):
+    return [make_row(run.run_id, "h2", SPECIAL_METHOD, 0.4, published=PUBLISHED),
+            make_row(run.run_id, "heh-cation", SPECIAL_METHOD, -3.25),
+            make_row(run.run_id, "h2", "uccsd-vqe", 0.0123456789, stderr_ha=0.0002),
+            make_row(run.run_id, "lih", "uccsd-vqe", None, status="error", message="worker died")]
+
+
+def test_latex_escape_makes_every_special_character_literal():
+    assert latex_escape(r"a&b%c$d#e_f{g}h~i^j\k<l>m|n") == (
+        r"a\&b\%c\$d\#e\_f\{g\}h\textasciitilde{}i\textasciicircum{}j\textbackslash{}k"
+        r"\textless{}l\textgreater{}m\textbar{}n")
+    assert latex_escape("two\nlines") == "two lines"
+    assert latex_escape(r"\&") == r"\textbackslash{}\&"     # escaped once, never twice
+
+
+def _cells(line: str) -> list[str]:
+    body = line.rstrip()
+    assert body.endswith(r"\\"), line
+    return re.split(r"(?<!\\)&", body[:-2])
+
+
+def test_latex_table_is_booktabs_and_escaped(registry):
+    run = make_run(methods=(SPECIAL_METHOD, "uccsd-vqe"))
+    rows = _rows(run)
+    text, table = render_table(run, rows, "latex", registry=registry)
+    lines = text.splitlines()
+    start = next(i for i, ln in enumerate(lines) if ln.startswith(r"\begin{tabular}"))
+    spec = re.fullmatch(r"\\begin\{tabular\}\{([lr]+)\}", lines[start]).group(1)
+    assert lines[start + 1] == r"\toprule" and lines[start + 3] == r"\midrule"
+    end = lines.index(r"\bottomrule")
+    assert lines[end + 1] == r"\end{tabular}" and r"\hline" not in text
+    body = lines[start + 4:end]
+    assert len(body) == len(rows)
+    for line in [lines[start + 2]] + body:
+        assert len(_cells(line)) == len(spec)
+    assert r"\cite{szabo-ostlund-1996}" in text
+    escaped = latex_escape(SPECIAL_METHOD)
+    assert sum(escaped in ln for ln in body) == 2
+    for line in body:                       # nothing special survives unescaped outside math and \cite
+        plain = re.sub(r"\$[^$]*\$|\\cite\{[^}]*\}|\\[a-z]+\{\}|\\[&%$#_{}]", "", line.rstrip()[:-2])
+        assert not re.search(r"(?<!\\)[%#_{}~^<>|\\]", plain), line
+    caption = next(ln for ln in lines if ln.startswith(r"\caption"))
+    assert "1.5936" in caption and table.results_hash in caption and r"$\le$" in caption
+    assert r"m$E_\mathrm{h}$" in lines[start + 2]           # units in the header
+
+
+def test_markdown_is_a_valid_pipe_table(registry):
+    run = make_run(methods=(SPECIAL_METHOD, "uccsd-vqe"))
+    rows = _rows(run)
+    text, table = render_table(run, rows, "markdown", "case,method,error,sigma,verdict,sources", registry)
+    lines = text.splitlines()
+    assert lines[0].startswith("Table: ") and table.results_hash in lines[0] and lines[1] == ""
+    pipe = lines[2:]
+    assert all(ln.startswith("| ") and ln.endswith(" |") for ln in pipe)
+    split = [re.split(r"(?<!\\)\|", ln)[1:-1] for ln in pipe]
+    assert {len(c) for c in split} == {6}
+    assert [c.strip() for c in split[0]] == ["case", "method", "error / mEh", "sigma / mEh", "verdict",
+                                             "sources (bib keys)"]
+    assert all(re.fullmatch(r" (:---|---:) ", c) for c in split[1])
+    assert len(pipe) == 2 + len(rows)
+    assert r"\|f" in text and r"\<e\>" in text and "[@szabo-ostlund-1996]" in text
+    sigma = [c[3].strip() for c in split[2:]]
+    assert "0.200" in sigma and sigma.count("--") == 3
+
+
+def test_csv_round_trips_through_pandas_with_units(registry):
+    run = make_run(methods=(SPECIAL_METHOD, "uccsd-vqe"))
+    rows = _rows(run)
+    text, table = render_table(run, rows, "csv", registry=registry)
+    frame = pd.read_csv(io.StringIO(text), float_precision="round_trip")
+    assert list(frame.columns) == [c.header for c in table.columns]
+    assert {"E_method / Eh", "E_reference / Eh", "error / mEh", "threshold / mEh"} <= set(frame.columns)
+    by_key = {(r.case, r.method): r for r in rows}
+    assert len(frame) == len(rows)
+    for _, line in frame.iterrows():
+        r = by_key[(line["case"], line["method"])]
+        if r.energy_ha is None:
+            assert pd.isna(line["E_method / Eh"]) and pd.isna(line["error / mEh"])
+        else:
+            assert line["E_method / Eh"] == r.energy_ha and line["error / mEh"] == r.error_mha   # exact
+        assert line["E_reference / Eh"] == r.reference_energy_ha and line["verdict"] == r.verdict
+        assert line["threshold / mEh"] == r.threshold_mha and line["reference rung"] == "fci"
+        assert line["results sha256[:12]"] == table.results_hash and line["run id"] == run.run_id
+    assert frame["qubits"].dtype.kind == "i"
+
+
+def test_results_hash_identifies_the_results():
+    run = make_run(methods=("a",))
+    rows = [make_row(run.run_id, "h2", "a", 0.1), make_row(run.run_id, "lih", "a", 2.0)]
+    h = results_hash(rows)
+    assert re.fullmatch(r"[0-9a-f]{12}", h)
+    assert results_hash(rows[::-1]) == h
+    slower = [make_row(run.run_id, "h2", "a", 0.1, seconds=99.0), rows[1]]
+    assert results_hash(slower) == h                       # timings are not results
+    assert results_hash([make_row(run.run_id, "h2", "a", 0.1000001), rows[1]]) != h
+    failing = make_row(run.run_id, "h2", "a", 0.1)
+    failing.verdict = "fail"
+    assert results_hash([failing, rows[1]]) != h
+
+
+def test_columns_are_chosen_and_checked():
+    run = make_run(methods=("a",))
+    rows = [make_row(run.run_id, "h2", "a", 0.1)]
+    text, table = render_table(run, rows, "csv", "case,error")
+    assert text.splitlines()[0] == "case,error / mEh"
+    with pytest.raises(InputError, match="unknown column"):
+        render_table(run, rows, "csv", "case,energy_in_kcal")
+    with pytest.raises(InputError, match="format"):
+        render_table(run, rows, "html")
+    assert {"qubits", "terms", "one_norm", "groups", "parameters", "two_qubit_gates", "sources"} <= set(COLUMNS)
+
+
+def test_table_command_writes_table_and_bib(tmp_path, registry):
+    run = make_run(methods=("a",))
+    rows = [make_row(run.run_id, "h2", "a", 0.1, published=PUBLISHED), make_row(run.run_id, "lih", "a", 0.2)]
+    store_with(tmp_path / "r.sqlite", run, rows).close()
+    parser = argparse.ArgumentParser()
+    add_table_arguments(parser)
+    out, bib = tmp_path / "t.tex", tmp_path / "cited.bib"
+    args = parser.parse_args([run.run_id, "--db", str(tmp_path / "r.sqlite"), "--format", "latex",
+                              "--out", str(out), "--bib", str(bib)])
+    assert run_table(args) == 0
+    assert r"\toprule" in out.read_text()
+    written = bib.read_text()
+    keys = [registry.cases["h2"].geometry_source, "szabo-ostlund-1996", registry.cases["lih"].geometry_source]
+    for key in dict.fromkeys(keys):
+        assert written.count(registry.bib[key].raw) == 1
+    assert written.count("@") == len(set(keys))
