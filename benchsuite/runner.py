@@ -439,7 +439,8 @@ def run_grid(run_id: str, tasks: list[Task], methods: dict, cfg: GridConfig, on_
             if fields.get("status") != "ok":
                 failed[tuple(job_id.split("|")[1:])] = fields.get("message", "reference ladder failed")
             if progress:
-                progress.reference_done(job_id.split("|", 1)[1], fields)
+                _, case_name, basis_label = job_id.split("|")
+                progress.reference_done(f"{case_name}[{basis_label}]", fields)
         cache = DiskCache(cfg.cache_dir)
         ladders = {k: reference_ladder(case, basis, cache=cache, max_determinants=cfg.max_determinants)
                    for k, (case, basis) in pairs.items() if k not in failed}
