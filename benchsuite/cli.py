@@ -372,7 +372,8 @@ def _add_run(sub) -> None:
     p.add_argument("--workers", type=int, default=None, help="worker processes (default: the core count)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler, e.g. tcp://host:8786")
     p.add_argument("--timeout-s", type=float, default=None, help="per-task time budget, enforced")
-    p.add_argument("--reference-timeout-s", type=float, default=None, help="per reference ladder")
+    p.add_argument("--reference-timeout-s", type=float, default=1800.0,
+                   help="per reference ladder (default 1800 s): a stuck SCF cannot hold up the run")
     p.add_argument("--max-determinants", type=int, default=5_000_000)
     p.add_argument("--db", type=Path, default=None, help="results database (default .benchsuite/results.sqlite)")
     p.add_argument("--json", type=Path, metavar="FILE", help="write the run record and every result")
@@ -436,6 +437,7 @@ def _run_run(args) -> int:
             entries += [(c, c.basis(args.basis)) for c in matched]
     enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction).check()
     for flag, value in (("--workers", args.workers), ("--timeout-s", args.timeout_s),
+                        ("--reference-timeout-s", args.reference_timeout_s),
                         ("--threshold-mha", args.threshold_mha), ("--max-determinants", args.max_determinants)):
         if value is not None and value <= 0:
             raise InputError("must be positive", field=flag)
@@ -484,14 +486,26 @@ def _run_run(args) -> int:
     run_grid(run.run_id, tasks, methods, cfg, on_row, progress)
     progress.close()
     rows = store.results(run.run_id)
-    summary = _summary(rows, args.allow_inconclusive)
+    summary = {**run.summary, **_summary(rows, args.allow_inconclusive)}
     store.finish_run(run.run_id, "complete", summary)
     run = store.get_run(run.run_id)
     return _gate_outputs(args, store, run, rows, baseline_id)
 
 
+#: Run settings kept in ``RunRecord.summary["settings"]`` so that ``--resume`` restores them.
+RESUMED_SETTINGS = ("basis", "threshold_mha", "confidence", "allow_inconclusive", "timeout_s",
+                    "reference_timeout_s", "max_determinants", "cases", "case_file")
+
+
+def _settings(args) -> dict:
+    return {k: ([str(p) for p in getattr(args, k)] if k in ("cases", "case_file") else getattr(args, k))
+            for k in RESUMED_SETTINGS}
+
+
 def _restore_run_arguments(args, run) -> None:
-    """--resume: the selection, methods and options come from the stored run."""
+    """--resume: the selection, methods, options and settings come from the stored run."""
+    for key, value in run.summary.get("settings", {}).items():
+        setattr(args, key, [Path(v) for v in value] if key in ("cases", "case_file") else value)
     args.suite = run.suite
     args.case = None if run.suite else run.cases
     args.method = list(run.methods)
@@ -517,7 +531,8 @@ def _new_run_record(args, run_id, enc, options, default_threshold, source, metho
         suite=args.suite, cases=list(args.case or []), methods=list(args.method),
         options={m: dict(o) for m, o in options.items()}, encoding=enc.label,
         threshold_mha=args.threshold_mha or default_threshold, threshold_source=source, seed=args.seed,
-        packages=package_versions(), git=git_state(Path.cwd()), plugin_git=plugin_git, machine=machine_info())
+        packages=package_versions(), git=git_state(Path.cwd()), plugin_git=plugin_git, machine=machine_info(),
+        summary={"settings": _settings(args)})
 
 
 def _summary(rows, allow_inconclusive: bool) -> dict:

@@ -122,7 +122,8 @@ def test_sigkill_then_resume_stores_every_task_once(tmp_path):
     env = {**os.environ, "BENCHSUITE_DB": str(tmp_path / "r.sqlite"), "BENCHSUITE_CACHE": str(tmp_path / "c"),
            "PYTHONPATH": str(Path(__file__).resolve().parents[1])}
     cmd = [sys.executable, "-m", "benchsuite.cli", "run", "--suite", "smoke", "--method", "exact-sector",
-           "--method", "hf-bitstring", "--method", f"{PLUGINS}:HartreeFockPlugin", "--workers", "1"]
+           "--method", "hf-bitstring", "--method", f"{PLUGINS}:HartreeFockPlugin", "--workers", "1",
+           "--threshold-mha", "30"]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
                             start_new_session=True)
     store_path = tmp_path / "r.sqlite"
@@ -152,6 +153,7 @@ def test_sigkill_then_resume_stores_every_task_once(tmp_path):
     keys = [r.task_key for r in rows]
     assert len(keys) == len(set(keys)) == 18
     assert before <= set(keys)
+    assert {r.threshold_mha for r in rows} == {30.0}      # the resumed part kept the run's settings
 
 
 def test_dask_cluster_matches_the_process_pool(gate):
