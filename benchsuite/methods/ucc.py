@@ -110,7 +110,7 @@ SIGN_CONVENTION = ("single T = a+_a a_i, double T = a+_a a+_b a_j a_i (i<j, a<b 
 _so = spin_orbital
 
 
-def uccsd_excitations(n: int, n_alpha: int, n_beta: int) -> list[Excitation]:
+def reference_singles_doubles(n: int, n_alpha: int, n_beta: int) -> list[Excitation]:
     """Spin-orbital singles and doubles from the reference, in the documented product order."""
     occ = {ALPHA: range(n_alpha), BETA: range(n_beta)}
     vir = {ALPHA: range(n_alpha, n), BETA: range(n_beta, n)}
@@ -539,7 +539,7 @@ class UCCSDVQE:
         _check_common(self.name, options)
         setup = _setup(problem)
         ints = problem.integrals
-        excitations = uccsd_excitations(ints.n_orbitals, ints.n_alpha, ints.n_beta)
+        excitations = reference_singles_doubles(ints.n_orbitals, ints.n_alpha, ints.n_beta)
         product = ExponentialProduct(setup.space, excitations, reference=setup.reference)
         start, x0 = _starting_point(self.name, options, product, {
             "mp2": lambda: first_order_guess(product, setup.ham, ints),
@@ -634,7 +634,7 @@ class AdaptVQE:
         ints = problem.integrals
         n = ints.n_orbitals
         if options["pool"] == "sd":
-            candidates = uccsd_excitations(n, ints.n_alpha, ints.n_beta)
+            candidates = reference_singles_doubles(n, ints.n_alpha, ints.n_beta)
         else:
             candidates = (generalised_singles(n, ALPHA) + generalised_singles(n, BETA)
                           + generalised_doubles(n))

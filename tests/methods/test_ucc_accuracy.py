@@ -16,7 +16,7 @@ import pytest
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem, SectorState, resolve_options
 from benchsuite.methods.determinant import DeterminantSpace, ExponentialProduct, SectorHamiltonian
-from benchsuite.methods.ucc import AdaptVQE, UCCSDVQE, UpCCGSDVQE, first_order_guess, uccsd_excitations
+from benchsuite.methods.ucc import AdaptVQE, UCCSDVQE, UpCCGSDVQE, first_order_guess, reference_singles_doubles
 from benchsuite.qubit.metrics import apply_pauli
 from tests.methods.test_ucc_dense import fci_energy, make_problem
 
@@ -178,7 +178,7 @@ def test_mp2_start_is_downhill_and_reaches_the_same_minimum():
     ints = problem.integrals
     space = DeterminantSpace(ints.n_orbitals, ints.n_alpha, ints.n_beta)
     ham = SectorHamiltonian(ints, space)
-    product = ExponentialProduct(space, uccsd_excitations(ints.n_orbitals, ints.n_alpha, ints.n_beta))
+    product = ExponentialProduct(space, reference_singles_doubles(ints.n_orbitals, ints.n_alpha, ints.n_beta))
     theta = first_order_guess(product, ham, ints)
     assert np.count_nonzero(theta) > 0
     assert product.energy(theta, ham) < ints.reference_energy_ha() - 1e-3

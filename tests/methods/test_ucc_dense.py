@@ -43,7 +43,7 @@ from benchsuite.methods.ucc import (
     serial_blas,
     staircase_cost,
     upccgsd_layer,
-    uccsd_excitations,
+    reference_singles_doubles,
 )
 from benchsuite.qubit.encodings import mode_indices
 from benchsuite.qubit.hamiltonian import encode_integrals, two_qubit_reduction
@@ -190,7 +190,7 @@ def kernel_objects(name: str, excitations, ordering="interleaved", parameter_ind
 def uccsd_objects(name: str, ordering: str = "interleaved", backend=None):
     """(problem, space, sector Hamiltonian, UCCSD product, excitations) of a case."""
     ints = integrals_for(name)
-    exc = uccsd_excitations(ints.n_orbitals, ints.n_alpha, ints.n_beta)
+    exc = reference_singles_doubles(ints.n_orbitals, ints.n_alpha, ints.n_beta)
     return (*kernel_objects(name, exc, ordering=ordering, backend=backend), exc)
 
 
@@ -280,7 +280,7 @@ def test_pool_gradients_are_commutator_expectations():
     ints = integrals_for("h4-chain")
     n = ints.n_orbitals
     pool_exc = generalised_singles(n, 0) + generalised_singles(n, 1) + generalised_doubles(n)
-    problem, space, ham, product = kernel_objects("h4-chain", uccsd_excitations(n, 2, 2))
+    problem, space, ham, product = kernel_objects("h4-chain", reference_singles_doubles(n, 2, 2))
     theta = random_angles(product.n_parameters, seed=5)
     psi_det = product.state(theta)
     grads = GeneratorPool(space, pool_exc).gradients(psi_det, ham.apply(psi_det))
@@ -335,7 +335,7 @@ def test_sector_state_on_other_registers(encoding, ordering, reduce):
     space = DeterminantSpace(ints.n_orbitals, ints.n_alpha, ints.n_beta)
     ham = SectorHamiltonian(ints, space)
     ref = reference_on_register(space, problem.hamiltonian)
-    exc = uccsd_excitations(ints.n_orbitals, 2, 2)
+    exc = reference_singles_doubles(ints.n_orbitals, 2, 2)
     product = ExponentialProduct(space, exc, reference=ref)
     zero = register_state(space, product.state(np.zeros(product.n_parameters)), problem.hamiltonian)
     assert zero.basis_states.tolist() == [problem.hamiltonian.hf_state()]
@@ -368,7 +368,7 @@ def test_cnot_counts_match_openfermion_jordan_wigner_strings():
     for ordering in ("interleaved", "blocked"):
         problem = make_problem("lih", ordering=ordering)
         ints = problem.integrals
-        exc = uccsd_excitations(ints.n_orbitals, ints.n_alpha, ints.n_beta)
+        exc = reference_singles_doubles(ints.n_orbitals, ints.n_alpha, ints.n_beta)
         cnots, depth, label = staircase_cost(exc, problem.hamiltonian)
         expected = 0
         for e in exc:
