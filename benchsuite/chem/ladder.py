@@ -247,9 +247,13 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
 
 def reference_ladder(case: Case, basis: Basis | str | None = None, cache: DiskCache | None = None,
                      scf_kind: str | None = None,
-                     max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> Ladder:
-    """The ladder for one (case, basis), served from the cache when it can be."""
-    prep = prepare(case, basis, scf_kind)
+                     max_determinants: int = DEFAULT_MAX_DETERMINANTS, prep: Prepared | None = None) -> Ladder:
+    """The ladder for one (case, basis), served from the cache when it can be.
+
+    ``prep`` (from :func:`~benchsuite.chem.space.prepare`) lets a caller share one SCF between
+    the ladder and :func:`~benchsuite.chem.space.case_integrals`.
+    """
+    prep = prep or prepare(case, basis, scf_kind)
     cache = cache or DiskCache(None)
     fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep)}
 

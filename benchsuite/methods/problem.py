@@ -73,7 +73,7 @@ def build_problem(case: Case, basis: Basis | str | None = None, enc: Encoding = 
     if 2 * prep.space.n_orbitals > MAX_QUBITS:
         raise InputError(f"{2 * prep.space.n_orbitals} qubits needed; at most {MAX_QUBITS} are supported",
                          case.path, "basis")
-    ladder = reference_ladder(case, prep.basis, cache=cache, max_determinants=max_determinants)
+    ladder = reference_ladder(case, prep.basis, cache=cache, max_determinants=max_determinants, prep=prep)
     ints, _, space = case_integrals(case, prep.basis, cache=cache, prep=prep)
     ham = encode(ints, enc)
     problem = QubitProblem(case=case.name, basis=prep.basis.label, space=space.label, hamiltonian=ham,

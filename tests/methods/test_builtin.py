@@ -111,3 +111,21 @@ def test_sampled_options_are_checked(run_cli):
     code, _, err = run_cli("solve", "h2", "--method", "sampled", "--option", "allocation=random")
     assert code == 2 and "allocation" in err and "one of" in err
     assert SampledEnergy().stochastic and not SampledEnergy().variational
+
+
+def test_problem_and_reference_share_one_scf(registry, monkeypatch):
+    """Without a cache, building a problem runs the SCF once: ladder and integrals share it."""
+    import benchsuite.chem.space as space
+
+    calls = []
+    real = space.run_scf
+
+    def counting(*args, **kwargs):
+        calls.append(args)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(space, "run_scf", counting)
+    prep = build_problem(registry.case("lih"))
+    assert len(calls) == 1
+    assert prep.problem.integrals.reference_energy_ha() == pytest.approx(prep.ladder.rung("hf").energy_ha,
+                                                                         abs=1e-9)
