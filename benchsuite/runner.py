@@ -53,6 +53,18 @@ def _context():
     return ctx
 
 
+def timeout_fields(seconds: float, limit_s: float) -> dict:
+    return {"status": "timeout", "seconds": seconds, "message": f"stopped after {limit_s:g} s (time budget)"}
+
+
+def died_fields(exit_code: int | None, seconds: float, detail: str = "") -> dict:
+    """A worker that ended without a result: its signal (``os.abort`` -> SIGABRT) or exit code."""
+    how = (f"signal {signal.Signals(-exit_code).name}" if exit_code is not None and exit_code < 0
+           else f"exit code {exit_code}")
+    return {"status": "error", "seconds": seconds,
+            "message": f"worker process died ({how}) before returning a result" + (f": {detail}" if detail else "")}
+
+
 def validate_result(result, method_name: str, exact_ha: float | None, variational: bool) -> dict:
     """Turn what a method returned into Outcome fields; contract breaches become ``invalid``."""
     if not isinstance(result, MethodResult):
@@ -149,17 +161,12 @@ def execute(method, problem: QubitProblem, options: dict | None = None, timeout_
     if fields is None and proc.is_alive() and timeout_s is not None and elapsed >= timeout_s:
         proc.kill()
         proc.join()
-        return Outcome(method=name, status="timeout", seconds=elapsed,
-                       message=f"stopped after {timeout_s:g} s (time budget)")
+        return Outcome(method=name, **timeout_fields(elapsed, timeout_s))
     proc.join(5)
     if fields is None:
-        code = proc.exitcode
-        how = (f"signal {signal.Signals(-code).name}" if code is not None and code < 0
-               else f"exit code {code}")
         if proc.is_alive():
             proc.kill()
-        return Outcome(method=name, status="error", seconds=elapsed,
-                       message=f"worker process died ({how}) before returning a result")
+        return Outcome(method=name, **died_fields(proc.exitcode, elapsed))
     return Outcome(method=name, **fields)
 
 
@@ -284,8 +291,7 @@ class LocalPool:
                     proc.join()
                     conn.close()
                     del self.running[conn]
-                    yield job.job_id, {"status": "timeout", "seconds": now - started,
-                                       "message": f"stopped after {job.timeout_s:g} s (time budget)"}
+                    yield job.job_id, timeout_fields(now - started, job.timeout_s)
 
     def _collect(self, conn):
         job, proc, started = self.running.pop(conn)
@@ -296,10 +302,7 @@ class LocalPool:
         conn.close()
         proc.join(5)
         if fields is None:
-            code = proc.exitcode
-            how = f"signal {signal.Signals(-code).name}" if code is not None and code < 0 else f"exit code {code}"
-            fields = {"status": "error", "seconds": time.perf_counter() - started,
-                      "message": f"worker process died ({how}) before returning a result"}
+            fields = died_fields(proc.exitcode, time.perf_counter() - started)
         return job.job_id, fields
 
 
@@ -313,14 +316,10 @@ def _subprocess_work(payload: bytes, timeout_s: float | None) -> dict:
         proc = subprocess.run([sys.executable, "-m", "benchsuite.runner"], input=payload, capture_output=True,
                               timeout=timeout_s)
     except subprocess.TimeoutExpired:
-        return {"status": "timeout", "seconds": time.perf_counter() - t0,
-                "message": f"stopped after {timeout_s:g} s (time budget)"}
+        return timeout_fields(time.perf_counter() - t0, timeout_s)
     if proc.returncode != 0 or not proc.stdout:
-        code = proc.returncode
-        how = f"signal {signal.Signals(-code).name}" if code < 0 else f"exit code {code}"
         tail = proc.stderr.decode(errors="replace").strip().splitlines()[-3:]
-        return {"status": "error", "seconds": time.perf_counter() - t0,
-                "message": f"worker process died ({how}) before returning a result: {' | '.join(tail)}"}
+        return died_fields(proc.returncode, time.perf_counter() - t0, " | ".join(tail))
     return pickle.loads(proc.stdout)
 
 
