@@ -10,7 +10,7 @@ from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS, Ladder, reference_l
 from benchsuite.chem.space import case_integrals, prepare
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem
-from benchsuite.qubit.encodings import check_encoding, check_ordering
+from benchsuite.qubit.encodings import check_register
 from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, two_qubit_reduction
 from benchsuite.qubit.pauli import MAX_QUBITS
 from benchsuite.registry.case import Basis, Case
@@ -26,11 +26,7 @@ class Encoding:
     two_qubit_reduction: bool = False
 
     def check(self) -> "Encoding":
-        check_encoding(self.name)
-        check_ordering(self.ordering)
-        if self.two_qubit_reduction and (self.name != "parity" or self.ordering != "blocked"):
-            raise InputError("the two-qubit reduction needs the parity encoding with blocked ordering",
-                             field="--two-qubit-reduction")
+        check_register(self.name, self.ordering, self.two_qubit_reduction)
         return self
 
     @property

@@ -31,7 +31,7 @@ import sys
 import time
 
 from benchsuite.errors import InputError
-from benchsuite.qubit.encodings import ENCODINGS, ORDERINGS, check_encoding, check_ordering
+from benchsuite.qubit.encodings import ENCODINGS, ORDERINGS, check_register
 from benchsuite.qubit.pauli import MAX_QUBITS
 
 #: Largest terms listed in text output unless ``--terms`` says otherwise.
@@ -69,15 +69,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def check_options(args) -> None:
     """Everything about the options that can be wrong, before any work."""
-    check_encoding(args.encoding)
-    check_ordering(args.ordering)
-    if args.two_qubit_reduction and args.encoding != "parity":
-        raise InputError(f"the two-qubit reduction needs --encoding parity (got {args.encoding})",
-                         field="--two-qubit-reduction")
-    if args.two_qubit_reduction and args.ordering != "blocked":
-        raise InputError("the two-qubit reduction needs --ordering blocked (alpha spin-orbitals "
-                         "first, so that two qubits hold the N_alpha and N parities)",
-                         field="--two-qubit-reduction")
+    check_register(args.encoding, args.ordering, args.two_qubit_reduction)
     if args.taper_sector not in ("hf", "lowest"):
         raise InputError(f"unknown tapering sector {args.taper_sector!r}; choose hf or lowest",
                          field="--taper-sector")

@@ -59,6 +59,19 @@ def check_ordering(ordering: str) -> str:
     return ordering
 
 
+def check_register(encoding: str, ordering: str, two_qubit_reduction: bool = False) -> None:
+    """Encoding, ordering and the two-qubit reduction's requirements; InputError on any mismatch."""
+    check_encoding(encoding)
+    check_ordering(ordering)
+    if two_qubit_reduction and encoding != "parity":
+        raise InputError(f"the two-qubit reduction needs --encoding parity (got {encoding})",
+                         field="--two-qubit-reduction")
+    if two_qubit_reduction and ordering != "blocked":
+        raise InputError("the two-qubit reduction needs --ordering blocked (alpha spin-orbitals "
+                         "first, so that two qubits hold the N_alpha and N parities)",
+                         field="--two-qubit-reduction")
+
+
 def encoding_matrix(encoding: str, n_modes: int) -> np.ndarray:
     """The 0/1 matrix A (n_modes x n_modes) with qubit state b = A n mod 2."""
     check_encoding(encoding)
