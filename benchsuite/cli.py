@@ -135,12 +135,7 @@ def _run_references(args) -> int:
     if args.suite:
         pairs = [(e.case, e.basis) for e in reg.suite_entries(args.suite, args.basis)]
     elif args.case:
-        pairs = []
-        for name in args.case:
-            matched = reg.select(name) if "@" not in name else [reg.case(name)]
-            if not matched:
-                reg.case(name)  # raises with suggestions
-            pairs += [(c, c.basis(args.basis)) for c in matched]
+        pairs = [(e.case, e.basis) for e in reg.named_entries(args.case, args.basis)]
     else:
         raise InputError("name a case (see `benchsuite cases`) or give --suite", field="CASE")
     max_det = args.max_determinants or DEFAULT_MAX_DETERMINANTS
@@ -429,12 +424,7 @@ def _run_run(args) -> int:
     if args.suite:
         entries = [(e.case, e.basis) for e in reg.suite_entries(args.suite, args.basis)]
     else:
-        entries = []
-        for name in args.case:
-            matched = reg.select(name) if "@" not in name else [reg.case(name)]
-            if not matched:
-                reg.case(name)
-            entries += [(c, c.basis(args.basis)) for c in matched]
+        entries = [(e.case, e.basis) for e in reg.named_entries(args.case, args.basis)]
     enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction).check()
     for flag, value in (("--workers", args.workers), ("--timeout-s", args.timeout_s),
                         ("--reference-timeout-s", args.reference_timeout_s),

@@ -142,6 +142,17 @@ class Registry:
             return points
         return [c for n, c in sorted(self.cases.items()) if fnmatch.fnmatchcase(n, pattern)]
 
+    def named_entries(self, names: list[str], basis: str | None = None) -> list[SuiteEntry]:
+        """(case, basis) pairs for names given on the command line: a case, a scan (every point)
+        or a pattern; a name matching nothing is an input error with suggestions."""
+        entries = []
+        for name in names:
+            matched = self.select(name) if "@" not in name else [self.case(name)]
+            if not matched:
+                self.case(name)  # raises with suggestions
+            entries += [SuiteEntry(case=c, basis=c.basis(basis)) for c in matched]
+        return entries
+
     def suite_entries(self, suite_name: str, basis: str | None = None) -> list[SuiteEntry]:
         """The (case, basis) pairs of a suite, in the suite file's order, no repeats."""
         try:
