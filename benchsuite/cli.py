@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 
 from benchsuite.errors import InputError
+from benchsuite.report.terminal import fixed_table as format_table
 
 
 # -- shared options ----------------------------------------------------------------
@@ -42,20 +43,6 @@ def open_cache(args):
     from benchsuite.chem.cache import DiskCache, default_cache_dir
 
     return DiskCache(None if args.no_cache else (args.cache_dir or default_cache_dir()))
-
-
-def format_table(headers: list[str], rows: list[list], aligns: str | None = None) -> str:
-    """Plain fixed-width table; ``aligns`` one of 'l'/'r' per column (default left)."""
-    cells = [[("" if c is None else str(c)) for c in row] for row in rows]
-    widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(headers)]
-    aligns = aligns or "l" * len(headers)
-
-    def line(vals):
-        return "  ".join(v.rjust(w) if a == "r" else v.ljust(w)
-                         for v, w, a in zip(vals, widths, aligns)).rstrip()
-
-    rule = "  ".join("-" * w for w in widths)
-    return "\n".join([line(headers), rule] + [line(r) for r in cells])
 
 
 def _print_json(obj) -> None:
@@ -255,16 +242,6 @@ def _add_encoding(p: argparse.ArgumentParser) -> None:
     p.add_argument("--two-qubit-reduction", action="store_true", help="parity + blocked only")
 
 
-def parse_key_values(items: list[str], flag: str) -> dict[str, str]:
-    out = {}
-    for item in items:
-        key, eq, value = item.partition("=")
-        if not eq or not key.strip():
-            raise InputError(f"expected key=value, got {item!r}", field=flag)
-        out[key.strip()] = value.strip()
-    return out
-
-
 def _add_solve(sub) -> None:
     p = sub.add_parser("solve", help="run one method on one case beside its FCI/CASCI reference")
     p.add_argument("case", metavar="CASE")
@@ -273,7 +250,7 @@ def _add_solve(sub) -> None:
     _add_encoding(p)
     p.add_argument("--option", action="append", default=[], metavar="KEY=VALUE", help="method option")
     p.add_argument("--seed", type=int, default=0)
-    p.add_argument("--timeout-s", type=float, default=None, help="stop the method after this many seconds")
+    p.add_argument("--timeout-s", type=finite_float, default=None, help="stop the method after this many seconds")
     _add_case_sources(p)
     _add_cache(p)
     p.add_argument("--format", choices=("table", "json"), default="table")
@@ -305,6 +282,8 @@ def _run_solve(args) -> int:
     reg = load_registry(args)
     case = reg.case(args.case)
     method, failure = resolve_method(args.method)
+    from benchsuite.gate.plan import parse_key_values
+
     options = parse_key_values(args.option, "--option")
     if method is not None:
         resolve_options(method, options)            # reject bad options before any work
@@ -347,7 +326,22 @@ def render_solve(r: dict) -> str:
 
 # -- run, compare, export ---------------------------------------------------------
 
+def finite_float(text: str) -> float:
+    """argparse type: a finite number (NaN, inf and overflow such as 1e400 are refused)."""
+    import math
+
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"must be finite, got {text!r}")
+    return value
+
+
 def _add_run(sub) -> None:
+    from benchsuite.scoring import MULTIPLE_TESTING
+
     p = sub.add_parser("run", help="the gate: every method on every selected case, judged and stored")
     sel = p.add_mutually_exclusive_group(required=True)
     sel.add_argument("--suite", help="a named suite")
@@ -359,37 +353,38 @@ def _add_run(sub) -> None:
     _add_encoding(p)
     p.add_argument("--option", action="append", default=[], metavar="M.KEY=VALUE",
                    help="method option, prefixed with the method's name")
-    p.add_argument("--threshold-mha", type=float, default=None,
+    p.add_argument("--threshold-mha", type=finite_float, default=None,
                    help="pass threshold in mHa for every case (default: case, then suite, then 1 kcal/mol)")
-    p.add_argument("--confidence", type=float, default=0.95,
+    p.add_argument("--confidence", type=finite_float, default=0.95,
                    help="confidence for stochastic verdicts (default 0.95)")
+    p.add_argument("--multiple-testing", choices=MULTIPLE_TESTING, default=MULTIPLE_TESTING[0],
+                   help="control of the run's stochastic fail claims: holm (family-wise error rate, default) "
+                        "or bh (false-discovery rate)")
     p.add_argument("--allow-inconclusive", action="store_true", help="inconclusive does not fail the gate")
+    p.add_argument("--require-converged", action="store_true",
+                   help="a result its method reports as not converged fails the gate (verdict unconverged)")
     p.add_argument("--workers", type=int, default=None, help="worker processes (default: the core count)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler, e.g. tcp://host:8786")
-    p.add_argument("--timeout-s", type=float, default=None, help="per-task time budget, enforced")
-    p.add_argument("--reference-timeout-s", type=float, default=1800.0,
+    p.add_argument("--timeout-s", type=finite_float, default=None, help="per-task time budget, enforced")
+    p.add_argument("--reference-timeout-s", type=finite_float, default=1800.0,
                    help="per reference ladder (default 1800 s): a stuck SCF cannot hold up the run")
     p.add_argument("--max-determinants", type=int, default=5_000_000)
     p.add_argument("--db", type=Path, default=None, help="results database (default .benchsuite/results.sqlite)")
     p.add_argument("--json", type=Path, metavar="FILE", help="write the run record and every result")
     p.add_argument("--junit", type=Path, metavar="FILE", help="write JUnit XML")
     p.add_argument("--report", type=Path, metavar="FILE.html", help="write the one-file HTML report")
+    _add_baseline_options(p)
     p.add_argument("--baseline", metavar="RUN_ID", help="compare with this run (or 'latest') and fail on regressions")
-    p.add_argument("--max-increase-mha", type=float, default=None,
-                   help="with --baseline: |error| growth counted as a regression (default 0.1 mHa)")
     p.add_argument("--seed", type=int, default=0)
     p.add_argument("--cache-dir", type=Path, default=None,
                    help="reference cache (default $BENCHSUITE_CACHE or .benchsuite/cache)")
 
 
-def _split_method_options(items: list[str], methods: list[str]) -> dict[str, dict[str, str]]:
-    out: dict[str, dict[str, str]] = {m: {} for m in methods}
-    for key, value in parse_key_values(items, "--option").items():
-        method, dot, opt = key.rpartition(".")
-        if not dot or method not in out:
-            raise InputError(f"{key!r} must be METHOD.KEY with METHOD one of {methods}", field="--option")
-        out[method][opt] = value
-    return out
+def _add_baseline_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--max-increase-mha", type=finite_float, default=None,
+                   help="|error| growth counted as a regression (default 0.1 mHa)")
+    p.add_argument("--allow-new", action="store_true",
+                   help="tasks absent from the baseline do not fail the comparison")
 
 
 def _db_path(args) -> Path:
@@ -398,224 +393,83 @@ def _db_path(args) -> Path:
     return args.db or default_db_path()
 
 
+def _run_settings(args):
+    from dataclasses import asdict
+
+    from benchsuite.gate.plan import RunSettings
+    from benchsuite.methods.problem import Encoding
+
+    enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction)
+    return RunSettings(basis=args.basis, threshold_mha=args.threshold_mha, confidence=args.confidence,
+                       multiple_testing=args.multiple_testing, allow_inconclusive=args.allow_inconclusive,
+                       require_converged=args.require_converged, timeout_s=args.timeout_s,
+                       reference_timeout_s=args.reference_timeout_s, max_determinants=args.max_determinants,
+                       cases=tuple(str(p) for p in args.cases), case_file=tuple(str(p) for p in args.case_file),
+                       encoding=asdict(enc))
+
+
 def _run_run(args) -> int:
     import os
 
     from benchsuite.chem.cache import default_cache_dir
-    from benchsuite.methods.base import resolve_options
-    from benchsuite.methods.discovery import resolve_method
-    from benchsuite.methods.problem import Encoding
+    from benchsuite.gate.execute import Execution, Outputs, RunInterrupted, execute_plan
+    from benchsuite.gate.plan import check_output_path, plan_run, stored_plan_arguments
+    from benchsuite.registry import Registry
     from benchsuite.report.progress import Progress
-    from benchsuite.runner import GridConfig, Task, run_grid
-    from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE
+    from benchsuite.report.terminal import render_summary
     from benchsuite.store.db import ResultStore
-    from benchsuite.store.provenance import new_run_id
-    from benchsuite.store.records import task_key
 
+    outputs = Outputs(*(check_output_path(getattr(args, f), f"--{f}") for f in ("json", "junit", "report")))
+    if args.max_increase_mha is not None and args.max_increase_mha < 0:
+        raise InputError("must not be negative", field="--max-increase-mha")
     store = ResultStore.open(_db_path(args))
     resumed = None
     if args.resume:
         resumed = store.resume_run(store.resolve_run_id(args.resume, any_status=True))
-        _restore_run_arguments(args, resumed)
-    if not args.method:
-        raise InputError("give at least one --method", field="--method")
-    reg = load_registry(args)
-    suite = reg.suites.get(args.suite) if args.suite else None
-    if args.suite:
-        entries = [(e.case, e.basis) for e in reg.suite_entries(args.suite, args.basis)]
+        plan_args = stored_plan_arguments(resumed)
     else:
-        entries = [(e.case, e.basis) for e in reg.named_entries(args.case, args.basis)]
-    enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction).check()
-    for flag, value in (("--workers", args.workers), ("--timeout-s", args.timeout_s),
-                        ("--reference-timeout-s", args.reference_timeout_s),
-                        ("--threshold-mha", args.threshold_mha), ("--max-determinants", args.max_determinants)):
-        if value is not None and value <= 0:
-            raise InputError("must be positive", field=flag)
-    if not 0 < args.confidence < 1:
-        raise InputError("must lie strictly between 0 and 1", field="--confidence")
-    options = _split_method_options(args.option, args.method)
-    methods = {}
-    for spec in args.method:
-        obj, failure = resolve_method(spec)
-        if obj is not None:
-            options[spec] = resolve_options(obj, options[spec])
-        methods[spec] = (obj, failure)
-    from benchsuite.chem.space import prepare
-    for case, basis in entries:
-        prepare(case, basis)                       # every input checked before any work
-    baseline_id = store.resolve_run_id(args.baseline) if args.baseline else None
-
-    def threshold_for(case):
-        if args.threshold_mha is not None:
-            return args.threshold_mha
-        if case.threshold_mha is not None:
-            return case.threshold_mha
-        return suite.threshold_mha if suite and suite.threshold_mha else DEFAULT_THRESHOLD_MHA
-
-    tasks = [Task(case, basis, enc, spec, options[spec], task_key(case.name, basis.label, enc.label, spec,
-                                                                  options[spec]))
-             for case, basis in entries for spec in args.method]
-    if resumed is not None:
-        missing = set(store.missing_tasks(resumed.run_id, [t.key for t in tasks]))
-        tasks = [t for t in tasks if t.key in missing]
-        run = resumed
-    else:
-        run = _new_run_record(args, new_run_id(), enc, options, DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE, methods)
-        store.begin_run(run)
-    cfg = GridConfig(workers=args.workers or os.cpu_count() or 1, scheduler=args.scheduler,
-                     timeout_s=args.timeout_s, reference_timeout_s=args.reference_timeout_s,
-                     cache_dir=str(args.cache_dir or default_cache_dir()), seed=args.seed,
-                     max_determinants=args.max_determinants, confidence=args.confidence,
-                     threshold_for=threshold_for)
-    progress = Progress(len(tasks))
-
-    def on_row(row):
-        store.add_result(row)
-        progress.row_done(row)
-
-    run_grid(run.run_id, tasks, methods, cfg, on_row, progress)
-    progress.close()
-    rows = store.results(run.run_id)
-    summary = {**run.summary, **_summary(rows, args.allow_inconclusive)}
-    store.finish_run(run.run_id, "complete", summary)
-    run = store.get_run(run.run_id)
-    return _gate_outputs(args, store, run, rows, baseline_id)
-
-
-#: Run settings kept in ``RunRecord.summary["settings"]`` so that ``--resume`` restores them.
-RESUMED_SETTINGS = ("basis", "threshold_mha", "confidence", "allow_inconclusive", "timeout_s",
-                    "reference_timeout_s", "max_determinants", "cases", "case_file")
-
-
-def _settings(args) -> dict:
-    return {k: ([str(p) for p in getattr(args, k)] if k in ("cases", "case_file") else getattr(args, k))
-            for k in RESUMED_SETTINGS}
-
-
-def _restore_run_arguments(args, run) -> None:
-    """--resume: the selection, methods, options and settings come from the stored run."""
-    for key, value in run.summary.get("settings", {}).items():
-        setattr(args, key, [Path(v) for v in value] if key in ("cases", "case_file") else value)
-    args.suite = run.suite
-    args.case = None if run.suite else run.cases
-    args.method = list(run.methods)
-    args.option = [f"{m}.{k}={v}" for m, opts in run.options.items() for k, v in opts.items()]
-    args.seed = run.seed
-    enc = run.encoding.split("/")
-    args.encoding = enc[0].split("+")[0]
-    args.ordering = enc[1] if len(enc) > 1 else "interleaved"
-    args.taper = "tapered" in enc[0]
-    args.two_qubit_reduction = "2qr" in enc[0]
-
-
-def _new_run_record(args, run_id, enc, options, default_threshold, source, methods):
-    import sys
-
-    from benchsuite.methods.discovery import builtin_names
-    from benchsuite.store.provenance import git_state, machine_info, package_versions, plugin_provenance
-    from benchsuite.store.records import RunRecord, utc_now
-
-    plugin_git = plugin_provenance(list(methods), builtin_names=builtin_names())
-    return RunRecord(
-        run_id=run_id, started_at=utc_now(), command=" ".join(["benchsuite"] + sys.argv[1:]),
-        suite=args.suite, cases=list(args.case or []), methods=list(args.method),
-        options={m: dict(o) for m, o in options.items()}, encoding=enc.label,
-        threshold_mha=args.threshold_mha or default_threshold, threshold_source=source, seed=args.seed,
-        packages=package_versions(), git=git_state(Path.cwd()), plugin_git=plugin_git, machine=machine_info(),
-        summary={"settings": _settings(args)})
-
-
-def _summary(rows, allow_inconclusive: bool) -> dict:
-    from benchsuite.report.gate import is_failing
-
-    counts: dict[str, int] = {}
-    for r in rows:
-        counts[r.verdict] = counts.get(r.verdict, 0) + 1
-    return {"counts": counts, "tasks": len(rows),
-            "failing": sum(is_failing(r.verdict, allow_inconclusive) for r in rows)}
-
-
-def _gate_outputs(args, store, run, rows, baseline_id) -> int:
-    from benchsuite.report.gate import junit_xml, run_document
-
-    if args.json:
-        _write_atomic(args.json, json.dumps(run_document(run, rows), indent=1, allow_nan=False).encode())
-    if args.junit:
-        _write_atomic(args.junit, junit_xml(run, rows, args.allow_inconclusive))
-    if args.report:
-        from benchsuite.report.command import write_report
-
-        write_report(store, run.run_id, args.report, load_registry(args))
-    print(render_run_summary(run, rows))
-    code = 1 if run.summary.get("failing") else 0
-    if baseline_id:
-        code = max(code, _print_comparison(store, baseline_id, run.run_id, args.max_increase_mha))
-    return code
-
-
-def _write_atomic(path: Path, blob: bytes) -> None:
-    import os
-    import tempfile
-
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=path.name + ".", suffix=".tmp")
-    with os.fdopen(fd, "wb") as fh:
-        fh.write(blob)
-    os.replace(tmp, path)
-
-
-def render_run_summary(run, rows) -> str:
-    from benchsuite.scoring import method_statistics
-
-    by_method: dict[str, list] = {}
-    for r in rows:
-        by_method.setdefault(r.method, []).append(r)
-    lines = [f"run {run.run_id}: {len(rows)} task(s), threshold {run.threshold_mha:.4f} mHa"]
-    table = []
-    for method, items in by_method.items():
-        st = method_statistics(method, [r.error_mha if r.status == "ok" else None for r in items],
-                               [r.verdict for r in items])
-        table.append([method, st.n_tasks, f"{100 * st.pass_rate:.0f} %", _fmt(st.max_abs_error_mha, ".4f"),
-                      _fmt(st.mae_mha, ".4f"), _fmt(st.rmse_mha, ".4f")])
-    lines.append(format_table(["method", "tasks", "pass", "max |error| / mEh", "MAE / mEh", "RMSE / mEh"],
-                              table, "lrrrrr"))
-    bad = [r for r in rows if r.verdict != "pass"]
-    for r in bad[:40]:
-        lines.append(f"  {r.verdict.upper():12s} {r.method} on {r.case}[{r.basis}]: "
-                     + (f"error {r.error_mha:+.4f} mHa" if r.error_mha is not None else "")
-                     + (f" {r.message.strip().splitlines()[0]}" if r.message.strip() else ""))
-    return "\n".join(lines)
-
-
-def _print_comparison(store, base_id: str, new_id: str, max_increase_mha) -> int:
-    from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_rows
-
-    limit = DEFAULT_MAX_INCREASE_MHA if max_increase_mha is None else max_increase_mha
-    changes = compare_rows(store.results(base_id), store.results(new_id), limit)
-    regressions = [c for c in changes if c.is_regression]
-    print(f"compared with {base_id}: {len(regressions)} regression(s)")
-    for c in changes:
-        tag = "REGRESSION" if c.is_regression else "note"
-        print(f"  {tag:10s} {c.kind:11s} {c.method} on {c.case}[{c.basis}]: {c.before} -> {c.after} {c.detail}")
-    return 1 if regressions else 0
+        plan_args = {"suite_name": args.suite, "case_names": args.case, "method_specs": args.method,
+                     "option_items": args.option, "settings": _run_settings(args), "seed": args.seed}
+    s = plan_args["settings"]
+    registry = Registry.load(case_dirs=[Path(p) for p in s.cases], case_files=[Path(p) for p in s.case_file])
+    plan = plan_run(registry, workers=args.workers, **plan_args)
+    baseline_id = store.resolve_run_id(args.baseline, exclude=resumed and resumed.run_id) if args.baseline else None
+    ex = Execution(workers=args.workers or os.cpu_count() or 1, scheduler=args.scheduler,
+                   cache_dir=str(args.cache_dir or default_cache_dir()), baseline_id=baseline_id,
+                   max_increase_mha=args.max_increase_mha, allow_new=args.allow_new)
+    try:
+        decision, run, rows = execute_plan(store, plan, ex, outputs, resumed, " ".join(["benchsuite"] + sys.argv[1:]),
+                                           Progress, registry)
+    except RunInterrupted as exc:
+        print(f"benchsuite: {exc}", file=sys.stderr)
+        return exc.exit_code
+    print(render_summary(run, rows, decision.to_dict()))
+    return decision.exit_code
 
 
 def _add_compare(sub) -> None:
     p = sub.add_parser("compare", help="regressions from a baseline run to a new run")
     p.add_argument("base", metavar="BASE")
     p.add_argument("new", metavar="NEW")
-    p.add_argument("--max-increase-mha", type=float, default=None,
-                   help="|error| growth that counts as a regression (default 0.1 mHa)")
+    _add_baseline_options(p)
     p.add_argument("--db", type=Path, default=None)
 
 
 def _run_compare(args) -> int:
+    from benchsuite.report.terminal import _baseline_lines
+    from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_runs
     from benchsuite.store.db import ResultStore
 
     store = ResultStore.open(_db_path(args), create=False)
-    return _print_comparison(store, store.resolve_run_id(args.base), store.resolve_run_id(args.new),
-                             args.max_increase_mha)
+    base, new = store.resolve_run_id(args.base), store.resolve_run_id(args.new)
+    limit = DEFAULT_MAX_INCREASE_MHA if args.max_increase_mha is None else args.max_increase_mha
+    if limit < 0:
+        raise InputError("must not be negative", field="--max-increase-mha")
+    comparison = compare_runs(store.get_run(base), store.results(base), store.get_run(new), store.results(new),
+                              limit, args.allow_new)
+    print("\n".join(_baseline_lines(comparison.to_dict())))
+    print("comparison " + ("passed" if comparison.passed else "failed: " + "; ".join(comparison.problems())))
+    return 0 if comparison.passed else 1
 
 
 def _add_export(sub) -> None:
@@ -688,7 +542,22 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def crash_note(exc: BaseException) -> str:
+    """Write the traceback of an internal error to a file; return where it went."""
+    import os
+    import tempfile
+    import traceback
+
+    text = "".join(traceback.format_exception(exc))
+    fd, path = tempfile.mkstemp(prefix="benchsuite-crash-", suffix=".txt")
+    with os.fdopen(fd, "w", encoding="utf-8") as fh:
+        fh.write(f"benchsuite {' '.join(sys.argv[1:])}\n\n{text}")
+    return path
+
+
 def main(argv: list[str] | None = None) -> int:
+    """Exit codes: 0 passed, 1 the gate (or comparison) failed, 2 input or usage error,
+    3 internal error (the traceback is written to a file named on stderr), 128 + signal when stopped."""
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
@@ -698,6 +567,13 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     except BrokenPipeError:
         return 0
+    except KeyboardInterrupt:
+        print("benchsuite: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # an internal error: never a bare traceback, never exit 1
+        print(f"benchsuite: internal error ({type(exc).__name__}: {str(exc)[:300]}); "
+              f"traceback written to {crash_note(exc)}", file=sys.stderr)
+        return 3
 
 
 if __name__ == "__main__":

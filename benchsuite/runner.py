@@ -351,7 +351,7 @@ class DaskPool:
 
 @dataclass
 class GridConfig:
-    """How a grid runs.  ``threshold_for(case)`` gives each case's pass threshold (mHa)."""
+    """How a grid runs: where, how many workers, time budgets, cache, seed."""
 
     workers: int = 1
     scheduler: str | None = None
@@ -360,68 +360,18 @@ class GridConfig:
     cache_dir: object = None
     seed: int = 0
     max_determinants: int = 5_000_000
-    confidence: float = 0.95
-    threshold_for: object = None
 
 
 def _make_pool(cfg: GridConfig):
     return DaskPool(cfg.scheduler) if cfg.scheduler else LocalPool(cfg.workers)
 
 
-def _secondary(ladder, energy_ha) -> dict:
-    """Every other rung and published value, with the method's error against each (mHa)."""
-    from benchsuite.scoring import error_mha
-
-    rungs = {}
-    for r in ladder.rungs:
-        err = None if r.energy_ha is None or energy_ha is None else error_mha(energy_ha, r.energy_ha)
-        rungs[r.method] = {"energy_ha": r.energy_ha, "status": r.status, "error_mha": err}
-    published = [{"method": p.method, "basis": p.basis, "energy_ha": p.energy_ha, "source": p.source,
-                  "from_memory": p.from_memory,
-                  "error_mha": None if energy_ha is None else error_mha(energy_ha, p.energy_ha)}
-                 for p in ladder.published]
-    return {"rungs": rungs, "published": published}
-
-
-def judge(run_id: str, task: Task, fields: dict, ladder, cfg: GridConfig):
-    """A finished task as a stored row: reference, error in mHa and verdict."""
-    from benchsuite.scoring import verdict
-    from benchsuite.store.records import ResultRow, utc_now
-
-    primary = None if ladder is None else ladder.primary
-    ref_ok = primary is not None and primary.status == "ok"
-    threshold = cfg.threshold_for(task.case)
-    status = fields.get("status", "error")
-    energy = fields.get("energy_ha")
-    judgement = verdict(status, energy, primary.energy_ha if ref_ok else None, threshold,
-                        fields.get("stderr_ha"), cfg.confidence)
-    problem = fields.get("problem", {})
-    scf = {} if ladder is None else {"method": ladder.scf.method, "converged": ladder.scf.converged,
-                                     "stable": ladder.scf.stable, "flags": list(ladder.scf.flags)}
-    message = fields.get("message", "") or judgement.message
-    return ResultRow(
-        run_id=run_id, task_key=task.key, case=task.case.name, basis=task.basis.label,
-        encoding=task.encoding.label, method=task.method, options=dict(task.options),
-        status=status, verdict=judgement.verdict, energy_ha=energy, stderr_ha=fields.get("stderr_ha"),
-        reference_method=primary.method if ref_ok else None,
-        reference_energy_ha=primary.energy_ha if ref_ok else None,
-        error_mha=judgement.error_mha, threshold_mha=threshold, converged=fields.get("converged"),
-        iterations=fields.get("iterations"), seconds=float(fields.get("seconds", 0.0)), message=message,
-        n_qubits=problem.get("n_qubits"), n_terms=problem.get("n_terms"),
-        one_norm_ha=problem.get("one_norm_ha"), qwc_groups=problem.get("qwc_groups"),
-        resources=fields.get("resources", {}), metadata=fields.get("metadata", {}),
-        parameters=fields.get("parameters"),
-        secondary={} if ladder is None else _secondary(ladder, energy),
-        space="" if ladder is None else ladder.space.label, tags=list(task.case.tags),
-        scan_parent=task.case.scan_parent, scan_length=task.case.scan_length, scf=scf,
-        finished_at=utc_now())
-
-
-def run_grid(run_id: str, tasks: list[Task], methods: dict, cfg: GridConfig, on_row, progress=None) -> None:
-    """References once per (case, basis), then every task; ``on_row(row)`` as each finishes.
+def run_grid(tasks: list[Task], methods: dict, cfg: GridConfig, on_result, progress=None) -> None:
+    """References once per (case, basis), then every task; ``on_result(task, fields, ladder)``
+    as each finishes (``ladder`` None when the reference ladder failed).
 
     ``methods`` maps a task's method spec to ``(method_object, failure)`` from discovery;
-    a plugin that could not be loaded yields an ``error`` row for each of its tasks.
+    a plugin that could not be loaded yields ``error`` fields for each of its tasks.
     """
     from benchsuite.chem.cache import DiskCache
     from benchsuite.chem.ladder import reference_ladder
@@ -449,18 +399,17 @@ def run_grid(run_id: str, tasks: list[Task], methods: dict, cfg: GridConfig, on_
             pair = (t.case.name, t.basis.label)
             obj, failure = methods[t.method]
             if pair in failed:
-                on_row(judge(run_id, t, {"status": "error", "message": "reference ladder failed: "
-                                         + failed[pair].strip().splitlines()[0]}, None, cfg))
+                on_result(t, {"status": "error", "message": "reference ladder failed: "
+                              + failed[pair].strip().splitlines()[0]}, None)
             elif obj is None:
-                on_row(judge(run_id, t, {"status": "error", "message": f"plugin unusable: {failure.reason}"},
-                             ladders[pair], cfg))
+                on_result(t, {"status": "error", "message": f"plugin unusable: {failure.reason}"}, ladders[pair])
             else:
                 payload = pickle.dumps(method_job(t, _sendable(obj), cfg.cache_dir, cfg.seed, cfg.timeout_s,
                                                   cfg.max_determinants))
                 method_jobs.append(Job(t.key, payload, cfg.timeout_s))
         for key, fields in pool.run(method_jobs):
             task = by_key[key]
-            on_row(judge(run_id, task, fields, ladders[(task.case.name, task.basis.label)], cfg))
+            on_result(task, fields, ladders[(task.case.name, task.basis.label)])
     finally:
         if isinstance(pool, DaskPool):
             pool.close()

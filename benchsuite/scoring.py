@@ -11,8 +11,11 @@ result contract); ``below-exact`` (a variational method returned an energy
 more than :data:`BELOW_EXACT_TOLERANCE_HA` below the exact sector energy: a
 wrong sector, a lost constant, a non-Hermitian bug).
 
-Verdicts (what it means against the threshold) add ``pass``, ``fail`` and
-``inconclusive``; see :func:`verdict`.
+Verdicts (what it means against the threshold) add ``pass``, ``fail``,
+``inconclusive`` and ``unconverged``; see :func:`verdict`.  Stochastic results
+(with a standard error) get their ``fail`` verdicts from a run-level
+multiple-testing procedure, :func:`stochastic_verdicts`.  Which verdicts fail
+the gate: :func:`is_failing`.
 """
 
 from __future__ import annotations
@@ -31,7 +34,18 @@ DEFAULT_THRESHOLD_MHA = CHEMICAL_ACCURACY_MHA
 THRESHOLD_SOURCE = f"1 kcal/mol = {CHEMICAL_ACCURACY_MHA:.4f} mHa, {CONSTANTS_SOURCE}"
 
 STATUSES = ("ok", "error", "timeout", "invalid", "below-exact")
-VERDICTS = ("pass", "fail", "inconclusive", "error", "timeout", "invalid", "below-exact")
+VERDICTS = ("pass", "fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact")
+
+#: Verdicts that fail the gate (``inconclusive`` unless the run allows it).
+FAILING = ("fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact")
+
+#: Multiple-testing procedures for a run's stochastic fail claims (the first is the default).
+MULTIPLE_TESTING = ("holm", "bh")
+
+
+def is_failing(verdict: str, allow_inconclusive: bool = False) -> bool:
+    """Whether a task with this verdict fails the gate."""
+    return verdict in FAILING and not (allow_inconclusive and verdict == "inconclusive")
 
 
 def error_mha(energy_ha: float, reference_ha: float) -> float:
@@ -66,37 +80,126 @@ def z_value(confidence: float) -> float:
 
 @dataclass(frozen=True)
 class Judgement:
+    """One task's verdict.  ``p_fail`` (stochastic results only) is the p-value of the
+    hypothesis "|true error| <= threshold" (see :func:`fail_p_value`), before any
+    run-level multiple-testing adjustment."""
+
     verdict: str
     error_mha: float | None
     threshold_mha: float
     message: str = ""
+    p_fail: float | None = None
+
+
+def fail_p_value(error_mha: float, sigma_mha: float, threshold_mha: float) -> float:
+    """p-value of H0: |mu| <= threshold for an error observed as ``error_mha`` ~ N(mu, sigma).
+
+    The test statistic is |error|; its tail probability is largest on the boundary
+    |mu| = threshold, so p = Phi((t - |e|)/sigma) + Phi((-t - |e|)/sigma).  A small p is
+    evidence that the method misses the threshold.
+    """
+    nd, a = NormalDist(), abs(error_mha)
+    return nd.cdf((threshold_mha - a) / sigma_mha) + nd.cdf((-threshold_mha - a) / sigma_mha)
+
+
+def fail_level(confidence: float) -> float:
+    """Significance level of a fail claim: (1 - confidence) / 2, one side of the two-sided interval.
+
+    For a single task this is the familiar rule "the confidence interval lies wholly beyond
+    the threshold"; over a run it is the family-wise (Holm) or false-discovery (BH) level.
+    """
+    return (1.0 - confidence) / 2.0
 
 
 def verdict(status: str, energy_ha: float | None, reference_ha: float | None,
             threshold_mha: float = DEFAULT_THRESHOLD_MHA, stderr_ha: float | None = None,
-            confidence: float = 0.95) -> Judgement:
-    """Judge one result.
+            confidence: float = 0.95, converged: bool | None = None,
+            require_converged: bool = False) -> Judgement:
+    """Judge one result (a family of one; see :func:`stochastic_verdicts` for a run).
 
-    Deterministic (no ``stderr_ha``): ``pass`` when |error| <= threshold, else ``fail``.
-    Stochastic with standard error sigma (mHa) and z for ``confidence``:
-    ``pass`` if |error| + z sigma <= threshold, ``fail`` if |error| - z sigma > threshold,
-    otherwise ``inconclusive``.  A status other than ``ok`` is the verdict itself.
+    A status other than ``ok`` is the verdict itself.  ``converged=False`` with
+    ``require_converged`` is ``unconverged``.  Deterministic (no ``stderr_ha``): ``pass``
+    when |error| <= threshold, else ``fail``.  Stochastic with standard error sigma (mHa)
+    and two-sided z for ``confidence``: ``pass`` if |error| + z sigma <= threshold, ``fail``
+    if :func:`fail_p_value` <= :func:`fail_level` (|error| - z sigma > threshold up to a
+    negligible far tail), otherwise ``inconclusive``.
     """
+    err = None if energy_ha is None or reference_ha is None else error_mha(energy_ha, reference_ha)
     if status != "ok":
-        err = None if energy_ha is None or reference_ha is None else error_mha(energy_ha, reference_ha)
         return Judgement(status, err, threshold_mha)
-    if reference_ha is None:
+    if err is None:
         return Judgement("inconclusive", None, threshold_mha, "no reference energy in this space")
-    err = error_mha(energy_ha, reference_ha)
+    if converged is False and require_converged:
+        return Judgement("unconverged", err, threshold_mha,
+                         "the method reports it did not converge (the run requires convergence)")
     if stderr_ha is None or stderr_ha == 0.0:
         return Judgement("pass" if abs(err) <= threshold_mha else "fail", err, threshold_mha)
-    margin = z_value(confidence) * 1000.0 * stderr_ha
+    sigma = 1000.0 * stderr_ha
+    margin = z_value(confidence) * sigma
+    p = fail_p_value(err, sigma, threshold_mha)
     if abs(err) + margin <= threshold_mha:
-        return Judgement("pass", err, threshold_mha)
-    if abs(err) - margin > threshold_mha:
-        return Judgement("fail", err, threshold_mha)
+        return Judgement("pass", err, threshold_mha, p_fail=p)
+    if p <= fail_level(confidence):
+        return Judgement("fail", err, threshold_mha, f"p = {p:.3g} for |error| <= threshold", p_fail=p)
     return Judgement("inconclusive", err, threshold_mha,
-                     f"|error| {abs(err):.4f} mHa within {margin:.4f} mHa ({confidence:.0%}) of the threshold")
+                     f"|error| {abs(err):.4f} mHa within {margin:.4f} mHa ({confidence:.0%}) of the threshold",
+                     p_fail=p)
+
+
+# -- run-level control of stochastic fail claims -------------------------------------
+
+def holm_rejections(p_values: list[float], level: float) -> list[bool]:
+    """Holm (1979) step-down: family-wise error rate <= ``level`` for any dependence."""
+    order = sorted(range(len(p_values)), key=lambda i: p_values[i])
+    m, out = len(p_values), [False] * len(p_values)
+    for rank, i in enumerate(order):
+        if p_values[i] > level / (m - rank):
+            break
+        out[i] = True
+    return out
+
+
+def bh_rejections(p_values: list[float], level: float) -> list[bool]:
+    """Benjamini & Hochberg (1995) step-up: false-discovery rate <= ``level`` (independent tests)."""
+    order = sorted(range(len(p_values)), key=lambda i: p_values[i])
+    m, cutoff = len(p_values), -1
+    for rank, i in enumerate(order):
+        if p_values[i] <= (rank + 1) * level / m:
+            cutoff = rank
+    out = [False] * m
+    for i in order[:cutoff + 1]:
+        out[i] = True
+    return out
+
+
+def stochastic_verdicts(judgements: list[Judgement], confidence: float = 0.95,
+                        procedure: str = "holm") -> list[Judgement]:
+    """The run's stochastic judgements with fail claims controlled over the run.
+
+    The family is every judgement with a ``p_fail``.  A per-task ``fail`` stands only
+    if ``procedure`` (``holm``: family-wise error rate; ``bh``: false-discovery rate)
+    rejects "|error| <= threshold" at :func:`fail_level`; otherwise it becomes
+    ``inconclusive`` with the adjusted reason.  ``pass`` needs no adjustment: the run
+    passes only if every task passes, and an intersection-union test of level alpha
+    per task has level alpha overall (Berger 1982).  Others are returned unchanged.
+    """
+    if procedure not in MULTIPLE_TESTING:
+        raise ValueError(f"unknown multiple-testing procedure {procedure!r}; one of {MULTIPLE_TESTING}")
+    family = [i for i, j in enumerate(judgements) if j.p_fail is not None]
+    rule = holm_rejections if procedure == "holm" else bh_rejections
+    rejected = rule([judgements[i].p_fail for i in family], fail_level(confidence))
+    out = list(judgements)
+    for i, keep in zip(family, rejected):
+        j = judgements[i]
+        if j.verdict == "fail" and not keep:
+            out[i] = Judgement("inconclusive", j.error_mha, j.threshold_mha,
+                               f"p = {j.p_fail:.3g} for |error| <= threshold is not significant after "
+                               f"{PROCEDURE_NAMES[procedure]} over {len(family)} stochastic task(s)",
+                               p_fail=j.p_fail)
+    return out
+
+
+PROCEDURE_NAMES = {"holm": "Holm-Bonferroni", "bh": "Benjamini-Hochberg"}
 
 
 # -- statistics -------------------------------------------------------------------

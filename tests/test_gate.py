@@ -55,13 +55,16 @@ def test_smoke_run_outputs_agree(gate, registry):
         assert stored.error_mha == pytest.approx(r["error_mha"], abs=1e-12)
         assert r["threshold_mha"] == pytest.approx(1.5936, abs=1e-4)
     tree = ET.parse(xml_path).getroot()
-    cases = tree.findall(".//testcase")
+    suites = {s.get("name"): s for s in tree.findall("testsuite")}
+    cases = [c for name in ("exact-sector", "hf-bitstring") for c in suites[name].findall("testcase")]
     assert len(cases) == len(rows)
-    failures = tree.findall(".//testcase/failure")
+    failures = [f for name in ("exact-sector", "hf-bitstring") for f in suites[name].findall("testcase/failure")]
     assert len(failures) == n_cases
+    # the gate suite fails exactly when the exit code says so, and JSON carries the same decision
+    assert suites["gate"].get("failures") == "1" and doc["gate"]["exit_code"] == code == 1
+    assert doc["gate"]["reasons"] == [f"{n_cases} of {2 * n_cases} task(s) not passing"]
     for f in failures:
         assert "Eh" in f.get("message") and "mHa" in f.get("message")
-    suites = {s.get("name"): s for s in tree.findall("testsuite")}
     assert suites["hf-bitstring"].get("failures") == str(n_cases)
     assert suites["exact-sector"].get("failures") == "0"
 
@@ -111,10 +114,11 @@ def test_compare_reports_the_worsened_case(gate):
     store.add_result(worse)
     code, out, err = gate("compare", base, new, "--db", str(gate.db))
     assert code == 1
-    lines = [ln for ln in out.splitlines() if "REGRESSION" in ln]
+    lines = [ln for ln in out.splitlines() if ln.strip().startswith("regression")]
     assert len(lines) == 1 and "heh-cation" in lines[0] and "error-grew" in lines[0]
+    assert "changed configuration" not in out          # same plugin, same options, same packages
     code, out, _ = gate("compare", base, base, "--db", str(gate.db))
-    assert code == 0
+    assert code == 0 and "comparison passed" in out
 
 
 def test_sigkill_then_resume_stores_every_task_once(tmp_path):

@@ -1,11 +1,16 @@
 """Machine-readable gate outputs: the run's JSON document and JUnit XML.
 
-Both are built from plain records (RunRecord, ResultRow), never from live
-chemistry objects.  JUnit: one ``<testsuite>`` per method, one ``<testcase>``
-per task (name ``case[basis]``); verdicts fail/below-exact/invalid become
-``<failure>``, error/timeout ``<error>``, inconclusive ``<failure>`` unless
-allowed (then ``<skipped>``); the message carries both energies and the
-error in mHa.
+Both are built from plain records (RunRecord, ResultRow) and the run's gate
+decision as a plain dict (``benchsuite.gate.decision.GateDecision.to_dict``),
+never from live chemistry objects, so they always agree with the exit code.
+
+JUnit: one ``<testsuite>`` per method, one ``<testcase>`` per task (name
+``method: case (basis)``); failing verdicts (:func:`benchsuite.scoring.is_failing`)
+become ``<failure>``, error/timeout ``<error>``, an allowed inconclusive
+``<skipped>``; the message carries both energies and the error in mHa.  A
+``baseline`` suite holds one failing testcase per regression and per
+comparison problem, and a ``gate`` suite one testcase that fails exactly when
+the gate failed, with its reasons.
 """
 
 from __future__ import annotations
@@ -13,11 +18,9 @@ from __future__ import annotations
 import xml.etree.ElementTree as ET
 from dataclasses import asdict
 
-FAILING = ("fail", "inconclusive", "error", "timeout", "invalid", "below-exact")
+from benchsuite.scoring import FAILING, is_failing
 
-
-def is_failing(verdict: str, allow_inconclusive: bool = False) -> bool:
-    return verdict in FAILING and not (allow_inconclusive and verdict == "inconclusive")
+__all__ = ["FAILING", "is_failing", "task_document", "run_document", "failure_message", "junit_xml"]
 
 
 def task_document(row) -> dict:
@@ -32,11 +35,10 @@ def task_document(row) -> dict:
             "secondary": row.secondary, "scf": row.scf, "tags": row.tags, "task_key": row.task_key}
 
 
-def run_document(run, rows: list) -> dict:
-    counts: dict[str, int] = {}
-    for r in rows:
-        counts[r.verdict] = counts.get(r.verdict, 0) + 1
-    return {"run": asdict(run), "counts": counts, "results": [task_document(r) for r in rows]}
+def run_document(run, rows: list, gate: dict) -> dict:
+    """``{"run", "gate", "counts", "results"}``; ``gate`` is the run's decision."""
+    return {"run": asdict(run), "gate": gate, "counts": dict(gate["counts"]),
+            "results": [task_document(r) for r in rows]}
 
 
 def _fmt(x, spec):
@@ -50,30 +52,72 @@ def failure_message(row) -> str:
             + (f", sigma = {1000 * row.stderr_ha:.4f} mHa" if row.stderr_ha else ""))
 
 
-def junit_xml(run, rows: list, allow_inconclusive: bool = False) -> bytes:
+def junit_xml(run, rows: list, gate: dict) -> bytes:
+    """JUnit XML of a run and its gate decision ``gate`` (a dict)."""
+    allow = bool(gate.get("allow_inconclusive"))
     root = ET.Element("testsuites", name=f"benchsuite run {run.run_id}")
     by_method: dict[str, list] = {}
     for r in rows:
         by_method.setdefault(r.method, []).append(r)
     for method, items in by_method.items():
         suite = ET.SubElement(root, "testsuite", name=method, tests=str(len(items)))
-        n_fail = n_err = n_skip = 0
+        tally = {"failures": 0, "errors": 0, "skipped": 0}
         for r in items:
-            case = ET.SubElement(suite, "testcase", name=f"{r.case}[{r.basis}]", classname=method,
+            case = ET.SubElement(suite, "testcase", name=f"{method}: {r.case} ({r.basis})", classname=method,
                                  time=f"{r.seconds:.3f}")
-            msg = failure_message(r)
-            if r.verdict in ("error", "timeout"):
-                n_err += 1
-                ET.SubElement(case, "error", message=msg, type=r.verdict).text = r.message
-            elif r.verdict == "inconclusive" and allow_inconclusive:
-                n_skip += 1
-                ET.SubElement(case, "skipped", message=msg)
-            elif is_failing(r.verdict):
-                n_fail += 1
-                ET.SubElement(case, "failure", message=msg, type=r.verdict).text = r.message
-            else:
-                ET.SubElement(case, "system-out").text = msg
-        suite.set("failures", str(n_fail))
-        suite.set("errors", str(n_err))
-        suite.set("skipped", str(n_skip))
+            _task_outcome(case, r, allow, tally)
+        for key, n in tally.items():
+            suite.set(key, str(n))
+    if gate.get("baseline") is not None:
+        _baseline_suite(root, gate["baseline"])
+    _gate_suite(root, gate)
     return ET.tostring(root, encoding="utf-8", xml_declaration=True)
+
+
+def _task_outcome(case, r, allow: bool, tally: dict) -> None:
+    msg = failure_message(r)
+    if r.verdict in ("error", "timeout"):
+        tally["errors"] += 1
+        ET.SubElement(case, "error", message=msg, type=r.verdict).text = r.message
+    elif r.verdict == "inconclusive" and allow:
+        tally["skipped"] += 1
+        ET.SubElement(case, "skipped", message=msg)
+    elif is_failing(r.verdict):
+        tally["failures"] += 1
+        ET.SubElement(case, "failure", message=msg, type=r.verdict).text = r.message
+    else:
+        ET.SubElement(case, "system-out").text = msg + ("" if r.converged is not False else " (not converged)")
+
+
+def _baseline_suite(root, baseline: dict) -> None:
+    suite = ET.SubElement(root, "testsuite", name=f"baseline {baseline['base_id']}")
+    n = 0
+    for c in baseline["changes"]:
+        label = f"{c['method']}: {c['case']} ({c['basis']}, {c['encoding']})"
+        case = ET.SubElement(suite, "testcase", name=label, classname="baseline")
+        config = "; ".join(c["config"])
+        text = f"{c['kind']}: {c['before']} -> {c['after']} {c['detail']}" + (
+            f"; changed configuration: {config}" if config else "")
+        if c["kind"] in ("pass->not-pass", "error-grew", "new-error"):
+            n += 1
+            ET.SubElement(case, "failure", message=text, type="regression")
+        else:
+            ET.SubElement(case, "system-out").text = text
+    for problem in baseline["problems"]:
+        if "regression" in problem:
+            continue
+        n += 1
+        case = ET.SubElement(suite, "testcase", name=problem, classname="baseline")
+        ET.SubElement(case, "failure", message=problem, type="comparison")
+    suite.set("tests", str(len(suite)))
+    suite.set("failures", str(n))
+
+
+def _gate_suite(root, gate: dict) -> None:
+    suite = ET.SubElement(root, "testsuite", name="gate", tests="1",
+                          failures="0" if gate["passed"] else "1")
+    case = ET.SubElement(suite, "testcase", name="gate decision", classname="gate")
+    if gate["passed"]:
+        ET.SubElement(case, "system-out").text = f"passed: {gate['n_tasks']} task(s)"
+    else:
+        ET.SubElement(case, "failure", message="; ".join(gate["reasons"]), type="gate")

@@ -239,6 +239,7 @@ class Provenance:
 class ReportData:
     title: str
     run_id: str
+    gate: dict                 # the run's gate decision (GateDecision.to_dict(), as stored)
     gate_passed: bool
     n_tasks: int
     n_failing: int
@@ -266,7 +267,8 @@ def collect_report(store, run_id: str, registry=None, title: str | None = None) 
 
 
 def _scored(row) -> float | None:
-    return row.error_mha if row.status == "ok" else None
+    """Every task with an error counts in the statistics, whatever its verdict."""
+    return row.error_mha
 
 
 def _counts(verdicts) -> dict[str, int]:
@@ -294,17 +296,32 @@ def build_report(run, rows, registry=None, title: str | None = None) -> ReportDa
                                   show_threshold=any(abs(r.threshold_mha - run.threshold_mha) > 1e-12
                                                      for r in items),
                                   encodings=list(dict.fromkeys(r.encoding for r in items))))
-    failing = run.summary.get("failing") if run.summary else None
-    n_failing = failing if isinstance(failing, int) else sum(is_failing(r.verdict) for r in rows)
+    gate = stored_gate(run, rows)
     return ReportData(
-        title=title or f"benchsuite report: run {run.run_id}",
-        run_id=run.run_id, gate_passed=bool(rows) and n_failing == 0, n_tasks=len(rows), n_failing=n_failing,
+        title=title or f"benchsuite report: run {run.run_id}", gate=gate,
+        run_id=run.run_id, gate_passed=gate["passed"], n_tasks=len(rows), n_failing=len(gate["failing"]),
         counts=_counts(r.verdict for r in rows), threshold_mha=run.threshold_mha,
         threshold_source=run.threshold_source, summaries=summaries, tables=tables,
         heatmap=_heatmap(rows, list(by_method)), scans=_scans(rows, run.threshold_mha),
         ladders=(ladders := _ladders(rows)), ladder_rungs=_ladder_columns(ladders), resources=[_resource_row(r) for r in rows],
         provenance=_provenance(run, rows), bibliography=_bibliography(rows, registry),
         tags=sorted({t for r in rows for t in r.tags}), verdicts=[v for v in VERDICTS if any(r.verdict == v for r in rows)])
+
+
+def stored_gate(run, rows) -> dict:
+    """The run's gate decision as stored at the end of the run; for a run that has none (stored by an
+    older version, or still running) a decision from the verdicts alone, saying so."""
+    gate = (run.summary or {}).get("gate")
+    if gate is not None:
+        return gate
+    failing = [{"verdict": r.verdict, "method": r.method, "case": r.case, "basis": r.basis,
+                "error_mha": r.error_mha} for r in rows if is_failing(r.verdict)]
+    reasons = ([] if rows else ["no task ran"]) + (
+        [f"{len(failing)} of {len(rows)} task(s) not passing"] if failing else [])
+    reasons.append("no gate decision was stored with this run (status "
+                   f"{run.status}); judged from the stored verdicts only")
+    return {"passed": False, "reasons": reasons, "failing": failing, "unconverged": [], "baseline": None,
+            "stochastic": {"n_tasks": 0}, "worst": None, "n_tasks": len(rows), "counts": _counts(r.verdict for r in rows)}
 
 
 def _worst(items) -> tuple | None:
