@@ -422,9 +422,9 @@ def _run_run(args) -> int:
     outputs = Outputs(*(check_output_path(getattr(args, f), f"--{f}") for f in ("json", "junit", "report")))
     if args.max_increase_mha is not None and args.max_increase_mha < 0:
         raise InputError("must not be negative", field="--max-increase-mha")
-    store = ResultStore.open(_db_path(args))
-    resumed = None
+    resumed, store = None, None
     if args.resume:
+        store = ResultStore.open(_db_path(args))
         resumed = store.resume_run(store.resolve_run_id(args.resume, any_status=True))
         plan_args = stored_plan_arguments(resumed)
     else:
@@ -433,6 +433,7 @@ def _run_run(args) -> int:
     s = plan_args["settings"]
     registry = Registry.load(case_dirs=[Path(p) for p in s.cases], case_files=[Path(p) for p in s.case_file])
     plan = plan_run(registry, workers=args.workers, **plan_args)
+    store = store or ResultStore.open(_db_path(args))
     baseline_id = store.resolve_run_id(args.baseline, exclude=resumed and resumed.run_id) if args.baseline else None
     ex = Execution(workers=args.workers or os.cpu_count() or 1, scheduler=args.scheduler,
                    cache_dir=str(args.cache_dir or default_cache_dir()), baseline_id=baseline_id,

@@ -73,8 +73,9 @@ def run_report(args) -> int:
     with store:
         out = write_report(store, run_id, args.out, registry, args.title)
         run = store.get_run(run_id)
-    failing = (run.summary or {}).get("failing")
-    verdict = "" if failing is None else (": gate passed" if failing == 0 else f": gate failed, {failing} task(s) not passing")
+    gate = (run.summary or {}).get("gate")
+    verdict = "" if gate is None else (": gate passed" if gate["passed"] else
+                                       ": gate failed, " + "; ".join(gate["reasons"]))
     print(f"wrote {out} ({out.stat().st_size:,} bytes) for run {run_id}{verdict}")
     return 0
 
