@@ -42,7 +42,7 @@ TEMPLATE_DIR = Path(__file__).with_name("templates")
 VERDICT_LABELS = {
     "pass": ("PASS", "✓"), "fail": ("FAIL", "✗"), "below-exact": ("BELOW EXACT", "▼"),
     "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"), "timeout": ("TIMEOUT", "⌛"),
-    "invalid": ("INVALID", "⊘"),
+    "invalid": ("INVALID", "⊘"), "unconverged": ("NOT CONVERGED", "↻"),
 }
 #: Rungs in ladder order; any other rung (UHF-based ones) follows, the primary last.
 RUNG_ORDER = ("hf", "mp2", "ccsd", "ccsd(t)")
@@ -77,6 +77,7 @@ class TaskRow:
     scan_parent: str | None = None
     scan_length: float | None = None
     sources: list[str] = field(default_factory=list)
+    converged: bool | None = None
 
 
 @dataclass
@@ -339,7 +340,7 @@ def _task_row(r, registry) -> TaskRow:
                    error_mha=r.error_mha, sigma_mha=None if r.stderr_ha is None else 1000.0 * r.stderr_ha,
                    threshold_mha=r.threshold_mha, verdict=r.verdict, status=r.status, seconds=r.seconds,
                    tags=list(r.tags), message=r.message.strip(), scan_parent=r.scan_parent,
-                   scan_length=r.scan_length, sources=row_citations(r, registry))
+                   scan_length=r.scan_length, sources=row_citations(r, registry), converged=r.converged)
 
 
 def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> str:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import argparse
 import re
 from html.parser import HTMLParser
@@ -103,8 +105,11 @@ def test_every_verdict_is_spelled_out():
     for n, v in enumerate(VERDICTS):
         status = v if v in ("error", "timeout", "invalid", "below-exact") else "ok"
         err = {"pass": 0.1, "fail": 9.0, "inconclusive": 1.5, "below-exact": -50.0}.get(v)
-        rows.append(make_row(run.run_id, f"case-{n}", "m", err, status=status,
-                             stderr_ha=0.001 if v == "inconclusive" else None))
+        row = make_row(run.run_id, f"case-{n}", "m", err, status=status,
+                       stderr_ha=0.001 if v == "inconclusive" else None)
+        if v == "unconverged":                 # judged with --require-converged
+            row = dataclasses.replace(row, verdict=v, converged=False)
+        rows.append(row)
     data = build_report(run, rows)
     assert [r.verdict for t in data.tables for r in t.rows] == sorted(VERDICTS, key=lambda v: f"case-{VERDICTS.index(v)}")
     html = render_html(data)
@@ -113,7 +118,7 @@ def test_every_verdict_is_spelled_out():
         cell = re.search(rf'<span class="verdict v-{re.escape(v)}"><span class="sym" aria-hidden="true">'
                          rf'{re.escape(symbol)}</span> {re.escape(label)}</span>', html)
         assert cell, v
-    assert "GATE FAILED" in html and f"{len(VERDICTS) - 1} of {len(VERDICTS)} task(s) did not pass" in html
+    assert "GATE FAILED" in html and f"{len(VERDICTS) - 1} of {len(VERDICTS)} task(s) not passing" in html
 
 
 def test_heat_band_edges():
