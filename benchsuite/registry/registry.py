@@ -31,12 +31,19 @@ from benchsuite.registry.loader import check_type, check_number, parse_case_file
 
 
 def builtin_data_dir() -> Path:
-    """``reference_data/`` of this checkout, or ``$BENCHSUITE_REFERENCE_DATA``."""
+    """The built-in registry: ``$BENCHSUITE_REFERENCE_DATA``, else the ``benchsuite.reference_data``
+    package -- the repository's top-level ``reference_data/``, which setuptools maps into the package
+    so that it ships inside the wheel and an editable install reads the checkout's files."""
     env = os.environ.get("BENCHSUITE_REFERENCE_DATA")
-    path = Path(env) if env else Path(__file__).resolve().parents[2] / "reference_data"
+    if env:
+        path = Path(env)
+    else:
+        from importlib.resources import files
+
+        path = Path(str(files("benchsuite.reference_data")))
     if not (path / "cases").is_dir():
-        raise InputError("built-in registry not found; install benchsuite from its source tree "
-                         "(pip install -e .) or set BENCHSUITE_REFERENCE_DATA", path)
+        raise InputError("built-in registry not found (no cases/ directory); reinstall benchsuite "
+                         "or set BENCHSUITE_REFERENCE_DATA", path)
     return path
 
 
