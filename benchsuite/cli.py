@@ -163,7 +163,7 @@ def render_ladder(ladder, bib: dict) -> str:
                                                       1000 * r.correlation_ha, ".4f"),
              _fmt(r.s2, ".6f"), _fmt(r.n_determinants, ","), _fmt(r.seconds, ".2f"), r.status, r.note]
             for r in ladder.rungs]
-    body = format_table(["rung", "energy / Eh", "E_corr / mEh", "<S^2>", "determinants", "seconds",
+    body = format_table(["rung", "energy / Eh", "E_corr / mHa", "<S^2>", "determinants", "seconds",
                          "status", "note"], rows, "lrrrrrll")
     out = head + [body]
     if ladder.published:
@@ -176,7 +176,7 @@ def render_ladder(ladder, bib: dict) -> str:
                              p.source + (f" ({entry.short()})" if entry else ""),
                              "from memory" if p.from_memory else "checked", p.note])
         out += ["published values:", format_table(
-            ["rung", "basis", "energy / Eh", "computed - published / mEh", "source", "", "note"],
+            ["rung", "basis", "energy / Eh", "computed - published / mHa", "source", "", "note"],
             pub_rows, "llrrlll")]
     if ladder.flags:
         out += ["FLAGS: " + " | ".join(ladder.flags)]
@@ -309,12 +309,12 @@ def _run_solve(args) -> int:
 def render_solve(r: dict) -> str:
     ref = r["reference"]
     lines = [f"{r['case']}  basis {r['basis']}  {r['space']}  {r['encoding']}  {r['n_qubits']} qubits",
-             format_table(["", "energy / Eh", "error / mEh", "status", "seconds"], [
+             format_table(["", "energy / Eh", "error / mHa", "status", "seconds"], [
                  [r["method"], _fmt(r["energy_ha"], ".10f"), _fmt(r["error_mha"], "+.4f"), r["status"],
                   _fmt(r["seconds"], ".2f")],
                  [ref["method"] or "(no reference)", _fmt(ref["energy_ha"], ".10f"), "", "", ""]], "lrrll")]
     if r["stderr_ha"] is not None:
-        lines.append(f"standard error {1000 * r['stderr_ha']:.4f} mEh")
+        lines.append(f"standard error {1000 * r['stderr_ha']:.4f} mHa")
     if r["resources"]:
         lines.append("resources: " + ", ".join(f"{k} {v}" for k, v in r["resources"].items()))
     if r["message"]:

@@ -61,7 +61,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
                    help="refuse --exact and --taper-sector lowest above this many qubits before "
                         "reductions (default 24)")
     p.add_argument("--epsilon-mha", type=float, default=None,
-                   help="target standard error for the shot estimate, mEh (default 1.594, 1 kcal/mol)")
+                   help="target standard error for the shot estimate, mHa (default 1.594, 1 kcal/mol)")
     p.add_argument("--terms", type=int, default=TEXT_TERMS,
                    help=f"text output: list this many largest terms, 0 for all (default {TEXT_TERMS})")
     p.add_argument("--format", choices=("json", "text"), default="json")
@@ -174,7 +174,7 @@ def render_text(doc: dict, n_terms: int) -> str:
         f"SCF ({doc['scf_method']}) {doc['scf_energy_ha']:.10f} Eh",
         f"Pauli terms {m['n_terms']}, 1-norm {m['one_norm_ha']:.6f} Eh ({m['one_norm_definition']})",
         f"QWC groups {m['qwc_groups']} ({m['grouping_method']})",
-        f"shots for eps = {1000 * shots['epsilon_ha']:.4f} mEh on the {shots['state']} state: "
+        f"shots for eps = {1000 * shots['epsilon_ha']:.4f} mHa on the {shots['state']} state: "
         f"{shots['no_grouping']:.4g} ungrouped, {shots['with_grouping']:.4g} grouped, "
         f"bound {shots['upper_bound']:.4g}",
         f"build {doc['build_seconds']:.3f} s (encoding only), reductions {doc['reduction_seconds']:.3f} s",

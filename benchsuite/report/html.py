@@ -20,7 +20,7 @@ Three stages, each testable on its own:
    outside the bibliography's plain text.
 
 Verdicts are always spelled out (``PASS``, ``FAIL``, ...) with a symbol;
-colour only repeats what the text says.  Units: Eh for energies, mEh for
+colour only repeats what the text says.  Units: Eh for energies, mHa for
 errors, thresholds and sigma, s for times.  No PySCF, no OpenFermion.
 """
 

@@ -62,7 +62,7 @@ def _new_figure(width: float, height: float) -> Figure:
 
 
 def scan_svg(scan, salt: str) -> str:
-    """Dissociation curve of one scan: energies (top) and errors in mEh inside the
+    """Dissociation curve of one scan: energies (top) and errors in mHa inside the
     +/- threshold band (bottom, symmetric-log scale once errors dwarf the band)."""
     fig = _new_figure(7.4, 5.6)
     top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
@@ -87,9 +87,9 @@ def scan_svg(scan, salt: str) -> str:
     top.set_ylabel("energy / Eh")
     top.set_title(mpl_text(f"{scan.name}  [{scan.basis}, {scan.encoding}]"), fontsize=10)
     top.legend(fontsize=8, frameon=False)
-    bottom.set_ylabel("error / mEh")
+    bottom.set_ylabel("error / mHa")
     bottom.set_xlabel("bond length / Å")
-    bottom.set_title(f"error; shaded: the ±{thr:.4f} mEh pass band", fontsize=8, loc="left")
+    bottom.set_title(f"error; shaded: the ±{thr:.4f} mHa pass band", fontsize=8, loc="left")
     for ax in (top, bottom):
         ax.grid(True, lw=0.4, color="#cccccc")
     return figure_svg(fig, salt, f"Dissociation curve of {scan.name} in {scan.basis}: energies and errors")

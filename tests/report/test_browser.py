@@ -110,7 +110,7 @@ def test_real_report_in_chromium(browser, real_run, registry, tmp_path):
 
     # sorting: the error column of the first method table, ascending then descending
     table = w.page.locator("table.results").first
-    header = table.locator("thead th", has_text="error / mEh")
+    header = table.locator("thead th", has_text="error / mHa")
     column = [h.inner_text() for h in table.locator("thead th").all()].index(header.inner_text())
     header.locator("button").click()
 
