@@ -358,7 +358,7 @@ def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> st
 
 
 def _task_label(case: str, basis: str, encoding: str, several_encodings: bool) -> str:
-    return f"{case} [{basis}" + (f", {encoding}]" if several_encodings else "]")
+    return f"{case} ({basis}" + (f", {encoding})" if several_encodings else ")")
 
 
 def _heatmap(rows, methods: list[str]) -> HeatMap:

@@ -41,7 +41,7 @@ class Progress:
             self.stream.write("\r" + head.ljust(60))
         else:
             err = "" if row.error_mha is None else f" {row.error_mha:+.4f} mHa"
-            self.stream.write(f"{head}  {row.method} on {row.case}[{row.basis}]: {row.verdict}{err}\n")
+            self.stream.write(f"{head}  {row.method} on {row.case} ({row.basis}): {row.verdict}{err}\n")
         self.stream.flush()
 
     def close(self) -> None:
