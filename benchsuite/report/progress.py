@@ -19,6 +19,7 @@ class Progress:
         self.t0 = time.perf_counter()
 
     def reference_done(self, label: str, fields: dict) -> None:
+        self.t0 = time.perf_counter()          # the task phase starts after the last reference: ETA from here
         if not self.interactive:
             state = fields.get("status")
             self.stream.write(f"reference {label}: {state} ({fields.get('seconds', 0.0):.1f} s)\n")
@@ -27,6 +28,7 @@ class Progress:
     def eta(self) -> str:
         if not self.done:
             return "--:--"
+        # tasks finished before the task phase began (failed references, unusable plugins) cost nothing
         rest = (time.perf_counter() - self.t0) / self.done * (self.total - self.done)
         return f"{int(rest // 60)}:{int(rest % 60):02d}"
 
