@@ -210,8 +210,9 @@ def _run_processes(marker: str) -> list[int]:
 def _start_run(tmp_path, *extra):
     """`benchsuite run` of a plugin that forks a `sleep`, stopped once its tasks are running."""
     marker = f"BENCHSUITE_TEST_RUN={uuid.uuid4().hex}"
+    (tmp_path / "tmp").mkdir()
     env = {**os.environ, "BENCHSUITE_DB": str(tmp_path / "r.sqlite"), "BENCHSUITE_CACHE": str(tmp_path / "c"),
-           "PYTHONPATH": str(ROOT), marker.split("=")[0]: marker.split("=")[1]}
+           "PYTHONPATH": str(ROOT), "TMPDIR": str(tmp_path / "tmp"), marker.split("=")[0]: marker.split("=")[1]}
     cmd = [sys.executable, "-m", "benchsuite.cli", "run", "--case", "h2", "heh-cation",
            "--method", f"{PLUGINS}:SleepsWithChild", "--method", "exact-sector", "--workers", "2", *extra]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
@@ -242,6 +243,7 @@ def test_signal_stops_the_run_and_every_process(tmp_path, signum, code):
     assert proc.returncode == code, err
     assert "Traceback" not in err
     assert _remaining_after(marker, 5.0) == []
+    assert list((tmp_path / "tmp").glob("benchsuite-output-*")) == []      # captured output files removed
 
 
 @linux_only
@@ -251,6 +253,7 @@ def test_sigkill_of_the_run_leaves_no_process(tmp_path):
     proc.kill()
     proc.wait()
     assert _remaining_after(marker, 5.0) == []
+    assert list((tmp_path / "tmp").glob("benchsuite-output-*")) == []      # the watchdogs removed them
 
 
 @linux_only
@@ -271,3 +274,21 @@ def test_interrupted_run_is_marked_and_resumes_once(tmp_path):
     assert done.returncode in (0, 1), done.stderr
     keys = [r.task_key for r in ResultStore.open(tmp_path / "r.sqlite", create=False).results(run.run_id)]
     assert len(keys) == len(set(keys)) == 4
+
+
+@linux_only
+def test_dask_path_worker_contains_the_plugin_too(h2):
+    """The fresh-interpreter worker that Dask jobs use: same capture, same group kill on timeout."""
+    import pickle
+
+    from benchsuite.runner import _subprocess_work
+
+    def job(attr):
+        method, _ = discovery.resolve_method(f"{PLUGINS}:{attr}")
+        return pickle.dumps(("direct", method, h2.problem, {}, h2.reference.energy_ha))
+
+    flood = _subprocess_work(job("FloodsStdout"), 60.0, 2048)
+    assert flood["status"] == "ok" and flood["captured_output"].rstrip().endswith("C-level line from printf")
+    hang = _subprocess_work(job("ForksSleepAndHangs"), 4.0, 2048)
+    assert hang["status"] == "timeout"
+    assert _gone_within([int(re.search(r"child pid (\d+)", hang["captured_output"]).group(1))], 2.0)

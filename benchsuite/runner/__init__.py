@@ -32,9 +32,9 @@ from dataclasses import asdict, dataclass, field, fields as dataclass_fields
 from benchsuite.methods.base import MethodResult, QubitProblem, resolve_options
 from benchsuite.runner import contract
 from benchsuite.runner.contract import Breach, bounded_text, short_repr
-from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_S, InterruptGuard, Isolation,
-                                         RunInterrupted, budget, end_worker, enter_isolation, flush_c_output,
-                                         kill_group, new_capture_file, read_capture, shutdown_forkserver)
+from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_S, Capture, InterruptGuard,
+                                         Isolation, RunInterrupted, budget, end_worker, enter_isolation,
+                                         flush_c_output, kill_group, shutdown_forkserver)
 from benchsuite.scoring import run_status
 
 __all__ = ["DEFAULT_MAX_MEMORY_MB", "DEFAULT_TIMEOUT_S", "DaskPool", "GridConfig", "Job", "LocalPool", "Outcome",
@@ -268,16 +268,16 @@ def work(job) -> dict:
         return {**exception_fields(exc), "seconds": time.perf_counter() - t0}
 
 
-def _contained_work(payload: bytes, iso: Isolation) -> bytes:
+def _contained_work(payload: bytes, iso: Isolation, capture_fd: int | None) -> bytes:
     """In a fresh worker: contain it, run the job, answer in checked JSON."""
-    enter_isolation(iso)
+    enter_isolation(iso, capture_fd)
     fields = work(payload)
     flush_c_output()
     return contract.encode_fields(fields)
 
 
-def _pool_child(payload: bytes, iso: Isolation, conn) -> None:
-    conn.send_bytes(_contained_work(payload, iso))
+def _pool_child(payload: bytes, iso: Isolation, conn, capture_fd: int) -> None:
+    conn.send_bytes(_contained_work(payload, iso, capture_fd))
     conn.close()
 
 
@@ -286,7 +286,7 @@ class _Running:
     job: Job
     proc: object
     started: float
-    capture: str
+    capture: Capture
 
 
 class LocalPool:
@@ -323,10 +323,11 @@ class LocalPool:
                     yield self._finish(conn, timeout_fields(now - w.started, w.job.timeout_s))
 
     def _start(self, job: Job) -> None:
-        capture = new_capture_file()
-        iso = Isolation(os.getpid(), capture, job.max_memory_mb)
+        capture = Capture()
+        iso = Isolation(os.getpid(), job.max_memory_mb)
         receiver, sender = self.ctx.Pipe(duplex=False)
-        proc = self.ctx.Process(target=_pool_child, args=(job.payload, iso, sender), daemon=True)
+        proc = self.ctx.Process(target=_pool_child, args=(job.payload, iso, sender, capture.sendable()),
+                                daemon=True)
         proc.start()
         sender.close()
         self.running[receiver] = _Running(job, proc, time.perf_counter(), capture)
@@ -351,7 +352,7 @@ class LocalPool:
         if fields is None:
             fields = died_fields(w.proc.exitcode, elapsed)
         fields.setdefault("seconds", elapsed)
-        fields["captured_output"] = read_capture(w.capture)
+        fields["captured_output"] = w.capture.tail()
         return w.job.job_id, fields
 
     def close(self) -> None:
@@ -360,7 +361,7 @@ class LocalPool:
             conn, w = self.running.popitem()
             conn.close()
             end_worker(w.proc)
-            read_capture(w.capture)
+            w.capture.close()
 
 
 def _subprocess_work(payload: bytes, timeout_s: float | None, max_memory_mb: float | None = None,
@@ -370,21 +371,22 @@ def _subprocess_work(payload: bytes, timeout_s: float | None, max_memory_mb: flo
     import sys
 
     t0 = time.perf_counter()
-    capture = new_capture_file()
-    stdin = pickle.dumps((payload, Isolation(os.getpid(), capture, max_memory_mb)))
+    capture = Capture()
+    stdin = pickle.dumps((payload, Isolation(os.getpid(), max_memory_mb), capture.fd))
     proc = subprocess.Popen([sys.executable, "-m", "benchsuite.runner"], stdin=subprocess.PIPE,
-                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, pass_fds=(capture.fd,))
     try:
-        out, _ = proc.communicate(stdin, timeout=timeout_s)
+        out, err = proc.communicate(stdin, timeout=timeout_s)
+        tail = " | ".join(err.decode(errors="replace").strip().splitlines()[-3:])   # before its capture began
         fields = (contract.decode_fields(out, needs_energy) if proc.returncode == 0 and out
-                  else died_fields(proc.returncode, time.perf_counter() - t0))
+                  else died_fields(proc.returncode, time.perf_counter() - t0, tail))
     except subprocess.TimeoutExpired:
         fields = timeout_fields(time.perf_counter() - t0, timeout_s)
     finally:
         kill_group(proc.pid)
         proc.kill()
         proc.wait()
-    fields["captured_output"] = read_capture(capture)
+    fields["captured_output"] = capture.tail()
     return fields
 
 
@@ -451,13 +453,13 @@ class GridConfig:
     workers: int = 1
     scheduler: str | None = None
     timeout_s: float | None = None
-    max_memory_mb: float | None = DEFAULT_MAX_MEMORY_MB
     reference_timeout_s: float | None = None
     cache_dir: object = None
     seed: int = 0
     max_determinants: int = 5_000_000
     confidence: float = 0.95
     threshold_for: object = None
+    max_memory_mb: float | None = DEFAULT_MAX_MEMORY_MB
 
 
 def _make_pool(cfg: GridConfig, guard: InterruptGuard):
@@ -579,11 +581,11 @@ def _run_grid(run_id, tasks, methods, cfg, on_row, progress, pool) -> None:
 
 
 def _stdin_main() -> None:
-    """The Dask path's worker: ``(payload, Isolation)`` pickled on stdin, checked JSON on stdout."""
+    """The Dask path's worker: ``(payload, Isolation, capture fd)`` pickled on stdin, checked JSON on stdout."""
     import sys
 
-    payload, iso = pickle.loads(sys.stdin.buffer.read())
+    payload, iso, capture_fd = pickle.loads(sys.stdin.buffer.read())
     answer = os.dup(1)                     # the real stdout; fd 1 becomes the capture file
-    data = _contained_work(payload, iso)
+    data = _contained_work(payload, iso, capture_fd)
     with os.fdopen(answer, "wb") as out:
         out.write(data)

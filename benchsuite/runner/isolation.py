@@ -5,8 +5,9 @@ A worker calls :func:`enter_isolation` before it unpickles anything:
 * it becomes the leader of a new session (``os.setsid``), so its pid is the
   process-group id of everything it starts; :func:`kill_group` ends them all;
 * its stdout and stderr (file descriptors 1 and 2, so C-level writes too) go
-  to a capture file named by the parent, who keeps the last
-  :data:`CAPTURE_TAIL_BYTES` (:func:`read_capture`);
+  to a :class:`Capture`, an unnamed temporary file the parent opened, who
+  keeps its last :data:`CAPTURE_TAIL_BYTES` (nothing to clean up, even
+  after SIGKILL: the file has no name);
 * its address space is limited to ``max_memory_mb`` (``RLIMIT_AS``): an
   allocation beyond it fails with ``MemoryError`` inside the worker;
 * a watchdog process in the same group (forked before the method runs) kills
@@ -22,6 +23,7 @@ nothing short of a container stops that.
 from __future__ import annotations
 
 import ctypes
+import fcntl
 import os
 import resource
 import signal
@@ -48,7 +50,6 @@ class Isolation:
     """What a worker needs to contain itself: who guards it, where its output goes, its memory limit."""
 
     guardian_pid: int
-    capture_path: str | None = None
     max_memory_mb: float | None = None
 
 
@@ -60,34 +61,57 @@ def budget(value: float | None, default: float) -> float | None:
     return None if value == float("inf") else value
 
 
-def new_capture_file() -> str:
-    fd, path = tempfile.mkstemp(prefix="benchsuite-output-", suffix=".txt")
-    os.close(fd)
-    return path
+class Capture:
+    """An unnamed temporary file (unlinked at once, append-only) for a worker's stdout and stderr."""
 
-
-def read_capture(path: str | None) -> str:
-    """The last :data:`CAPTURE_TAIL_BYTES` of a capture file (then removed), with a note if cut."""
-    if not path:
-        return ""
-    try:
-        with open(path, "rb") as fh:
-            size = fh.seek(0, os.SEEK_END)
-            fh.seek(max(0, size - CAPTURE_TAIL_BYTES))
-            tail = fh.read()
+    def __init__(self):
+        fd, path = tempfile.mkstemp(prefix="benchsuite-output-")
         os.unlink(path)
-    except OSError:
-        return ""
-    text = tail.decode("utf-8", errors="replace")
-    return f"[... {size - len(tail)} earlier bytes not kept]\n{text}" if size > len(tail) else text
+        fcntl.fcntl(fd, fcntl.F_SETFL, fcntl.fcntl(fd, fcntl.F_GETFL) | os.O_APPEND)
+        self.fd = fd
+
+    def sendable(self) -> "_SentFd":
+        """The file as a multiprocessing argument (the fork server passes the descriptor itself)."""
+        return _SentFd(self.fd)
+
+    def tail(self) -> str:
+        """The last :data:`CAPTURE_TAIL_BYTES`, with a note when more was written; closes the file."""
+        try:
+            size = os.fstat(self.fd).st_size
+            data = os.pread(self.fd, CAPTURE_TAIL_BYTES, max(0, size - CAPTURE_TAIL_BYTES))
+        except OSError:
+            return ""
+        finally:
+            self.close()
+        text = data.decode("utf-8", errors="replace")
+        return f"[... {size - len(data)} earlier bytes not kept]\n{text}" if size > len(data) else text
+
+    def close(self) -> None:
+        if self.fd is not None:
+            os.close(self.fd)
+            self.fd = None
 
 
-def enter_isolation(iso: Isolation) -> None:
+class _SentFd:
+    def __init__(self, fd: int):
+        self.fd = fd
+
+    def __reduce__(self):
+        from multiprocessing import reduction
+
+        return _received_fd, (reduction.DupFd(self.fd),)
+
+
+def _received_fd(dup) -> int:
+    return dup.detach()
+
+
+def enter_isolation(iso: Isolation, capture_fd: int | None) -> None:
     """Called first in a worker: own session, captured output, watchdog, memory limit (see module doc)."""
     os.setsid()
-    if iso.capture_path:
-        _redirect_output(iso.capture_path)
-    _start_watchdog(iso.guardian_pid, trim_output=bool(iso.capture_path))
+    if capture_fd is not None:
+        _redirect_output(capture_fd)
+    _start_watchdog(iso.guardian_pid, trim_output=capture_fd is not None)
     _die_with_parent()
     if iso.max_memory_mb is not None:
         limit = int(iso.max_memory_mb * 1024 * 1024)
@@ -100,16 +124,16 @@ def enter_isolation(iso: Isolation) -> None:
     faulthandler.enable()                         # a crash leaves a traceback in the captured output
 
 
-def _redirect_output(path: str) -> None:
+def _redirect_output(fd: int) -> None:
     for stream in (sys.stdout, sys.stderr):
         try:
             stream.flush()
         except (AttributeError, OSError, ValueError):
             pass
-    fd = os.open(path, os.O_WRONLY | os.O_APPEND)
     os.dup2(fd, 1)
     os.dup2(fd, 2)
-    os.close(fd)
+    if fd > 2:
+        os.close(fd)
 
 
 def flush_c_output() -> None:
