@@ -258,8 +258,8 @@ def test_sigkill_of_the_run_leaves_no_process(tmp_path):
 
 @linux_only
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="cli.py does not yet catch RunInterrupted: the run stays 'running' "
-                                        "and no one-line notice is printed")
+@pytest.mark.xfail(strict=True, reason="the run command does not yet catch benchsuite.runner.RunInterrupted: "
+                                        "the run stays 'running' and no one-line notice is printed")
 def test_interrupted_run_is_marked_and_resumes_once(tmp_path):
     proc, marker, env = _start_run(tmp_path)
     proc.send_signal(signal.SIGTERM)
