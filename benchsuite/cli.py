@@ -365,7 +365,10 @@ def _add_run(sub) -> None:
                    help="a result its method reports as not converged fails the gate (verdict unconverged)")
     p.add_argument("--workers", type=int, default=None, help="worker processes (default: the core count)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler, e.g. tcp://host:8786")
-    p.add_argument("--timeout-s", type=finite_float, default=None, help="per-task time budget, enforced")
+    p.add_argument("--timeout-s", type=finite_float, default=None,
+                   help="per-task time budget in s, enforced by killing the worker's process group (default 3600)")
+    p.add_argument("--max-memory-mb", type=finite_float, default=None,
+                   help="address-space limit of each method's worker in MiB (default 4096)")
     p.add_argument("--reference-timeout-s", type=finite_float, default=1800.0,
                    help="per reference ladder (default 1800 s): a stuck SCF cannot hold up the run")
     p.add_argument("--max-determinants", type=int, default=5_000_000)
@@ -404,6 +407,7 @@ def _run_settings(args):
                        multiple_testing=args.multiple_testing, allow_inconclusive=args.allow_inconclusive,
                        require_converged=args.require_converged, timeout_s=args.timeout_s,
                        reference_timeout_s=args.reference_timeout_s, max_determinants=args.max_determinants,
+                       max_memory_mb=args.max_memory_mb,
                        cases=tuple(str(p) for p in args.cases), case_file=tuple(str(p) for p in args.case_file),
                        encoding=asdict(enc))
 

@@ -80,12 +80,14 @@ def new_run_record(plan: RunPlan, run_id: str, command: str):
 
 def run_tasks(store, run_id: str, plan: RunPlan, tasks, ex: Execution, progress=None) -> None:
     """The grid; each finished task is judged and stored at once (crash-consistent)."""
-    from benchsuite.runner import GridConfig, run_grid
+    from benchsuite.runner import DEFAULT_MAX_MEMORY_MB, GridConfig, run_grid
+    from benchsuite.runner import RunInterrupted as GridInterrupted
 
     s = plan.settings
     cfg = GridConfig(workers=ex.workers, scheduler=ex.scheduler, timeout_s=s.timeout_s,
                      reference_timeout_s=s.reference_timeout_s, cache_dir=ex.cache_dir, seed=plan.seed,
-                     max_determinants=s.max_determinants)
+                     max_determinants=s.max_determinants,
+                     max_memory_mb=s.max_memory_mb if s.max_memory_mb is not None else DEFAULT_MAX_MEMORY_MB)
 
     def on_result(task, fields, ladder):
         row = task_row(run_id, task, fields, ladder, plan)
@@ -93,28 +95,10 @@ def run_tasks(store, run_id: str, plan: RunPlan, tasks, ex: Execution, progress=
         if progress is not None:
             progress.row_done(row)
 
-    with _signals_raise(run_id):
+    try:
         run_grid(tasks, plan.methods, cfg, on_result, progress)
-
-
-class _signals_raise:
-    """SIGTERM/SIGINT raise :class:`RunInterrupted` inside the block (the runner's cleanup runs)."""
-
-    def __init__(self, run_id: str):
-        self.run_id, self.saved = run_id, {}
-
-    def _handler(self, signum, frame):
-        raise RunInterrupted(self.run_id, signum)
-
-    def __enter__(self):
-        for sig in (signal.SIGTERM, signal.SIGINT):
-            self.saved[sig] = signal.signal(sig, self._handler)
-        return self
-
-    def __exit__(self, *exc):
-        for sig, old in self.saved.items():
-            signal.signal(sig, old)
-        return False
+    except GridInterrupted as exc:               # the runner has killed and reaped every worker group
+        raise RunInterrupted(run_id, exc.signal_number) from None
 
 
 def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=None, command: str = "",

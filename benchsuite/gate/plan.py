@@ -32,7 +32,8 @@ class RunSettings:
     """How a run is executed and judged; stored with the run so that ``--resume`` restores it.
 
     ``threshold_mha`` is the command-line override (None: case, then suite, then
-    1 kcal/mol).  ``multiple_testing`` is ``holm`` (family-wise error rate of the
+    1 kcal/mol).  ``timeout_s`` / ``max_memory_mb`` per method task: None means the
+    runner's defaults (3600 s, 4096 MiB).  ``multiple_testing`` is ``holm`` (family-wise error rate of the
     run's stochastic fail claims) or ``bh`` (false-discovery rate).
     """
 
@@ -45,6 +46,7 @@ class RunSettings:
     timeout_s: float | None = None
     reference_timeout_s: float | None = 1800.0
     max_determinants: int = 5_000_000
+    max_memory_mb: float | None = None
     cases: tuple[str, ...] = ()
     case_file: tuple[str, ...] = ()
     encoding: dict = field(default_factory=lambda: asdict(Encoding()))
@@ -125,7 +127,8 @@ def check_output_path(path, flag: str) -> Path | None:
 def check_settings(s: RunSettings, seed: int, workers: int | None) -> None:
     for flag, value in (("--threshold-mha", s.threshold_mha), ("--timeout-s", s.timeout_s),
                         ("--reference-timeout-s", s.reference_timeout_s),
-                        ("--max-determinants", s.max_determinants), ("--workers", workers)):
+                        ("--max-determinants", s.max_determinants), ("--workers", workers),
+                        ("--max-memory-mb", s.max_memory_mb)):
         check_positive(value, flag)
     if not (isinstance(s.confidence, float) and 0 < s.confidence < 1):
         raise InputError(f"must lie strictly between 0 and 1, got {s.confidence!r}", field="--confidence")

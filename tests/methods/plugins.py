@@ -90,3 +90,210 @@ class Aborts(_Base):
 
 class NoRun:
     name = "lab-no-run"
+
+
+# -- the hostile-plugin zoo (tests/test_runner_hostile.py) ----------------------------------------
+
+def _hf_energy(problem) -> float:
+    return float(problem.hamiltonian.basis_state_energy(problem.hamiltonian.hf_state()))
+
+
+class CallsExit(_Base):
+    name = "lab-exit"
+
+    def run(self, problem, options):
+        import sys
+
+        sys.exit(3)
+
+
+class KillsItself(_Base):
+    name = "lab-kill-self"
+
+    def run(self, problem, options):
+        import signal
+
+        os.kill(os.getpid(), signal.SIGKILL)
+
+
+class Segfaults(_Base):
+    name = "lab-segfault"
+
+    def run(self, problem, options):
+        import ctypes
+
+        ctypes.string_at(0)
+
+
+class ForksSleepAndHangs(_Base):
+    """Starts a `sleep` child (prints its pid), then hangs: a timeout must end both."""
+
+    name = "lab-fork-hang"
+
+    def run(self, problem, options):
+        import subprocess
+
+        child = subprocess.Popen(["sleep", "300"])
+        print(f"child pid {child.pid}", flush=True)
+        time.sleep(600)
+
+
+class SleepsWithChild(_Base):
+    """Starts a `sleep` child (prints its pid), waits, then answers like HartreeFockPlugin
+    without ending the child (for cleanup and interrupt tests)."""
+
+    name = "lab-slow-child"
+    options = (Option("wait_s", float, 4.0, "seconds to wait before answering"),)
+
+    def run(self, problem, options):
+        import subprocess
+
+        child = subprocess.Popen(["sleep", "60"])
+        print(f"child pid {child.pid}", flush=True)
+        time.sleep(options["wait_s"])
+        return MethodResult(energy_ha=_hf_energy(problem), iterations=1)
+
+
+class FloodsStdout(_Base):
+    """4 MB on file descriptor 1 and a C-level printf, then a good answer."""
+
+    name = "lab-flood"
+
+    def run(self, problem, options):
+        import ctypes
+
+        chunk = b"x" * 65536
+        for _ in range(64):
+            os.write(1, chunk)
+        ctypes.CDLL(None).printf(b"\nC-level line from printf\n")
+        return MethodResult(energy_ha=_hf_energy(problem))
+
+
+class HugeMessage(_Base):
+    name = "lab-huge-message"
+
+    def run(self, problem, options):
+        raise RuntimeError("start of a long story " + "y" * 20_000_000)
+
+
+class Unpicklable(_Base):
+    name = "lab-unpicklable"
+
+    def __init__(self):
+        import threading
+
+        self.lock = threading.Lock()
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem))
+
+
+class OverflowIterations(_Base):
+    name = "lab-iterations"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem), iterations=10**20)
+
+
+class StringEnergy(_Base):
+    name = "lab-string-energy"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha="-1.137")
+
+
+class BoolEnergy(_Base):
+    name = "lab-bool-energy"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=True)
+
+
+class HugeIntEnergy(_Base):
+    name = "lab-huge-int"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=10**400)
+
+
+class ImplausibleEnergy(_Base):
+    name = "lab-implausible"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=-3.0e7)
+
+
+class NumpyEnergy(_Base):
+    """A numpy float energy and numpy parameters: fine."""
+
+    name = "lab-numpy"
+
+    def run(self, problem, options):
+        import numpy as np
+
+        return MethodResult(energy_ha=np.float64(_hf_energy(problem)), iterations=np.int64(2),
+                            parameters=np.zeros(3))
+
+
+class SetInResources(_Base):
+    name = "lab-set-resources"
+
+    def run(self, problem, options):
+        from benchsuite.methods.base import Resources
+
+        return MethodResult(energy_ha=_hf_energy(problem), resources=Resources(shots={100, 200}))
+
+
+class ObjectInResources(_Base):
+    name = "lab-object-resources"
+
+    def run(self, problem, options):
+        from benchsuite.methods.base import Resources
+
+        return MethodResult(energy_ha=_hf_energy(problem), resources=Resources(circuit_depth=object()))
+
+
+class HugeMetadata(_Base):
+    name = "lab-huge-metadata"
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem), metadata={"log": "z" * 5_000_000})
+
+
+class EatsMemory(_Base):
+    """Asks for 64 GiB, far beyond any worker memory limit."""
+
+    name = "lab-eats-memory"
+
+    def run(self, problem, options):
+        blob = bytearray(64 << 30)
+        return MethodResult(energy_ha=float(len(blob)))
+
+
+class WritesDatabase(_Base):
+    """Tries to forge a table in the results database named by BENCHSUITE_DB, then answers."""
+
+    name = "lab-writes-db"
+
+    def run(self, problem, options):
+        import sqlite3
+
+        path = os.environ.get("BENCHSUITE_DB")
+        if path:
+            with sqlite3.connect(path) as con:
+                con.execute("CREATE TABLE IF NOT EXISTS forged (note TEXT)")
+        return MethodResult(energy_ha=_hf_energy(problem), metadata={"found_database": bool(path)})
+
+
+class ForgesPayload(_Base):
+    """Replaces the runner's encoder inside its worker so that a text energy reaches the parent."""
+
+    name = "lab-forges-payload"
+
+    def run(self, problem, options):
+        import json
+
+        from benchsuite.runner import contract
+
+        contract.encode_fields = lambda fields: json.dumps({"status": "ok", "energy_ha": "-99"}).encode()
+        return MethodResult(energy_ha=_hf_energy(problem))

@@ -1,0 +1,540 @@
+"""Running methods with fault isolation.
+
+:func:`execute` runs one method on one problem in a worker process (the
+``forkserver`` start method: workers are forked from a clean server that never
+ran OpenMP code, so PySCF's threads cannot deadlock a child).  A method that
+raises, kills its own process, overruns its time budget or memory limit,
+returns NaN or a non-number, or breaks the result contract gets a status and
+a message; it never stops the caller.
+
+Each worker is contained (:mod:`benchsuite.runner.isolation`): its own
+process group, killed as a whole on timeout, interrupt or when the run's
+main process dies; an address-space limit (``max_memory_mb``, default
+:data:`DEFAULT_MAX_MEMORY_MB` MiB); its stdout/stderr captured at the file
+descriptor level into the task's ``captured_output`` (the last 16 kB), never
+mixed into the command's own output.  A method task without a time budget
+gets :data:`DEFAULT_TIMEOUT_S` seconds; pass ``math.inf`` for none.
+
+What a worker sends back is JSON, checked in the worker and again in the
+parent (:mod:`benchsuite.runner.contract`).
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+import pickle
+import signal
+import time
+import traceback
+from dataclasses import asdict, dataclass, field, fields as dataclass_fields
+
+from benchsuite.methods.base import MethodResult, QubitProblem, resolve_options
+from benchsuite.runner import contract
+from benchsuite.runner.contract import Breach, bounded_text, short_repr
+from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_S, Capture, InterruptGuard,
+                                         Isolation, RunInterrupted, budget, end_worker, enter_isolation,
+                                         flush_c_output, kill_group, shutdown_forkserver)
+from benchsuite.scoring import run_status
+
+__all__ = ["DEFAULT_MAX_MEMORY_MB", "DEFAULT_TIMEOUT_S", "DaskPool", "GridConfig", "Job", "LocalPool", "Outcome",
+           "RunInterrupted", "Task", "execute", "run_grid", "validate_result", "work"]
+
+_PRELOAD = ["benchsuite.methods.builtin", "benchsuite.methods.ucc", "benchsuite.qubit.sector"]
+
+
+@dataclass
+class Outcome:
+    """A finished task, as plain data (what the store, scoring and reports consume).
+
+    ``captured_output`` is the end of what the worker wrote to its stdout and
+    stderr (at most 16 kB, with a note when cut).
+    """
+
+    method: str
+    status: str
+    energy_ha: float | None = None
+    stderr_ha: float | None = None
+    converged: bool | None = None
+    iterations: int | None = None
+    seconds: float = 0.0
+    message: str = ""
+    parameters: list | None = None
+    resources: dict = field(default_factory=dict)
+    metadata: dict = field(default_factory=dict)
+    captured_output: str = ""
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+_OUTCOME_FIELDS = {f.name for f in dataclass_fields(Outcome)} - {"method"}
+
+
+def _context():
+    ctx = mp.get_context("forkserver")
+    try:
+        ctx.set_forkserver_preload(_PRELOAD)
+    except Exception:  # pragma: no cover - preload is an optimisation only
+        pass
+    return ctx
+
+
+def timeout_fields(seconds: float, limit_s: float) -> dict:
+    return {"status": "timeout", "seconds": seconds, "message": f"stopped after {limit_s:g} s (time budget)"}
+
+
+def died_fields(exit_code: int | None, seconds: float, detail: str = "") -> dict:
+    """A worker that ended without a result: its signal (``os.abort`` -> SIGABRT) or exit code."""
+    how = (f"signal {signal.Signals(-exit_code).name}" if exit_code is not None and exit_code < 0
+           else f"exit code {exit_code}")
+    return {"status": "error", "seconds": seconds,
+            "message": f"worker process died ({how}) before returning a result" + (f": {detail}" if detail else "")}
+
+
+def unsendable_fields(exc: Exception) -> dict:
+    """The same answer from ``solve`` and ``run`` for a method object that does not pickle."""
+    return {"status": "error", "message": f"method object cannot be sent to a worker process "
+                                          f"({bounded_text(str(exc), 500)}); define the class at module level "
+                                          "and keep unpicklable state (locks, open files) out of it"}
+
+
+def validate_result(result, method_name: str, exact_ha: float | None, variational: bool) -> dict:
+    """Turn what a method returned into Outcome fields; contract breaches become ``invalid``.
+
+    Types, ranges and sizes are checked and normalised first
+    (:func:`benchsuite.runner.contract.result_fields`), then the status.
+    """
+    if not isinstance(result, MethodResult):
+        return {"status": "invalid",
+                "message": f"{method_name} returned {type(result).__name__} {short_repr(result)}, "
+                           "not a MethodResult"}
+    try:
+        fields = contract.result_fields(result)
+    except Breach as exc:
+        return {"status": "invalid", "message": f"{method_name} returned {exc}"}
+    status, message = run_status(fields["energy_ha"], exact_ha, variational)
+    return {"status": status, "message": message, **fields}
+
+
+def exception_fields(exc: BaseException) -> dict:
+    """An ``error`` for an exception a method raised: its type, bounded text and innermost frames."""
+    if isinstance(exc, SystemExit):
+        return {"status": "error", "message": f"the method called sys.exit({short_repr(exc.code)})"}
+    try:
+        text = bounded_text(str(exc), 8192)
+    except Exception:
+        text = "(its text could not be formed)"
+    note = ""
+    if isinstance(exc, MemoryError):
+        note = "\n" + _memory_limit_note()
+    frames = "".join(traceback.format_tb(exc.__traceback__)[-6:])
+    return {"status": "error", "message": bounded_text(f"{type(exc).__name__}: {text}{note}\n{frames}")}
+
+
+def _memory_limit_note() -> str:
+    import resource
+
+    soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+    if soft == resource.RLIM_INFINITY:
+        return "(no memory limit was set)"
+    return f"(the worker's memory limit is {soft / 2**20:g} MiB: max_memory_mb)"
+
+
+def _run_here(method, problem: QubitProblem, options: dict, exact_ha) -> dict:
+    t0 = time.perf_counter()
+    try:
+        result = method.run(problem, options)
+        fields = validate_result(result, method.name, exact_ha, bool(getattr(method, "variational", False)))
+    except (Exception, SystemExit) as exc:
+        fields = exception_fields(exc)
+    fields["seconds"] = time.perf_counter() - t0
+    return fields
+
+
+def _direct_work(method, problem, options, exact_ha) -> dict:
+    return _run_here(method, problem, options, exact_ha)
+
+
+def execute(method, problem: QubitProblem, options: dict | None = None, timeout_s: float | None = None,
+            exact_ha: float | None = None, isolate: bool = True, max_memory_mb: float | None = None) -> Outcome:
+    """Run ``method`` on ``problem`` and classify what happened.
+
+    ``options`` are validated here (an unknown option is an input error before
+    any work).  ``exact_ha`` is the exact sector energy used for the
+    ``below-exact`` check of variational methods.  ``timeout_s`` and
+    ``max_memory_mb``: ``None`` means :data:`DEFAULT_TIMEOUT_S` and
+    :data:`DEFAULT_MAX_MEMORY_MB`, ``math.inf`` means no limit.
+    """
+    opts = resolve_options(method, options or {})
+    name = method.name
+    if not isolate:
+        return Outcome(method=name, **_run_here(method, problem, opts, exact_ha))
+    try:
+        payload = pickle.dumps(("direct", method, problem, opts, exact_ha))
+    except Exception as exc:
+        return Outcome(method=name, **unsendable_fields(exc))
+    job = Job(name, payload, budget(timeout_s, DEFAULT_TIMEOUT_S), budget(max_memory_mb, DEFAULT_MAX_MEMORY_MB))
+    with InterruptGuard() as guard:
+        pool = LocalPool(1, guard)
+        try:
+            (_, fields), = pool.run([job])
+        finally:
+            pool.close()
+    return Outcome(method=name, **{k: v for k, v in fields.items() if k in _OUTCOME_FIELDS})
+
+
+# =============================================================================
+# The case x method grid
+# =============================================================================
+
+@dataclass(frozen=True)
+class Task:
+    """One unit of work: a method on a (case, basis) in one encoding, with options."""
+
+    case: object            # registry Case (a frozen dataclass, picklable)
+    basis: object           # registry Basis
+    encoding: object        # methods.problem.Encoding
+    method: str             # the spec as given: built-in name, entry point or module:attr
+    options: dict
+    key: str
+
+
+@dataclass
+class Job:
+    """A payload for a worker and how to contain it.
+
+    ``timeout_s``/``max_memory_mb``: ``None`` means no limit (defaults are
+    applied by the caller).  ``needs_energy``: an ``ok`` answer must carry an
+    energy (method jobs; reference ladder jobs return none).
+    """
+
+    job_id: str
+    payload: bytes
+    timeout_s: float | None
+    max_memory_mb: float | None = None
+    needs_energy: bool = True
+
+
+def ladder_job(case, basis, cache_dir, max_determinants: int) -> tuple:
+    return ("ladder", case, basis, cache_dir, max_determinants)
+
+
+def method_job(task: Task, method_obj, cache_dir, seed: int, timeout_s, max_determinants: int) -> tuple:
+    return ("method", task, method_obj, cache_dir, seed, timeout_s, max_determinants)
+
+
+def _ladder_work(case, basis, cache_dir, max_determinants) -> dict:
+    from benchsuite.chem.cache import DiskCache
+    from benchsuite.chem.ladder import reference_ladder
+
+    t0 = time.perf_counter()
+    lad = reference_ladder(case, basis, cache=DiskCache(cache_dir), max_determinants=max_determinants)
+    primary = lad.primary
+    return {"status": "ok", "seconds": time.perf_counter() - t0, "cache": lad.cache_status,
+            "primary_status": None if primary is None else primary.status}
+
+
+def _method_work(task: Task, method_obj, cache_dir, seed, timeout_s, max_determinants) -> dict:
+    from benchsuite.chem.cache import DiskCache
+    from benchsuite.methods.problem import build_problem
+    from benchsuite.qubit.metrics import qwc_groups
+
+    prepared = build_problem(task.case, task.basis, task.encoding, cache=DiskCache(cache_dir), seed=seed,
+                             time_budget_s=timeout_s, max_determinants=max_determinants)
+    ref = prepared.reference
+    opts = resolve_options(method_obj, task.options)
+    fields = _run_here(method_obj, prepared.problem, opts, None if ref is None else ref.energy_ha)
+    pauli = prepared.problem.hamiltonian.pauli
+    groups = qwc_groups(pauli)
+    fields["problem"] = {"n_qubits": prepared.problem.n_qubits,
+                         "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
+                         "one_norm_ha": float(pauli.one_norm()),
+                         "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
+    return fields
+
+
+_WORK = {"ladder": _ladder_work, "method": _method_work, "direct": _direct_work}
+
+
+def work(job) -> dict:
+    """Run one job (a tuple, or its pickle) in this process and return plain fields; never raises."""
+    t0 = time.perf_counter()
+    try:
+        if isinstance(job, bytes):
+            job = pickle.loads(job)
+        return _WORK[job[0]](*job[1:])
+    except (Exception, SystemExit) as exc:
+        return {**exception_fields(exc), "seconds": time.perf_counter() - t0}
+
+
+def _contained_work(payload: bytes, iso: Isolation, capture_fd: int | None) -> bytes:
+    """In a fresh worker: contain it, run the job, answer in checked JSON."""
+    enter_isolation(iso, capture_fd)
+    fields = work(payload)
+    flush_c_output()
+    return contract.encode_fields(fields)
+
+
+def _pool_child(payload: bytes, iso: Isolation, conn, capture_fd: int) -> None:
+    conn.send_bytes(_contained_work(payload, iso, capture_fd))
+    conn.close()
+
+
+@dataclass
+class _Running:
+    job: Job
+    proc: object
+    started: float
+    capture: Capture
+
+
+class LocalPool:
+    """Up to ``workers`` forkserver processes, one per job, each killable on its own.
+
+    A pool of long-lived workers (concurrent.futures) cannot stop one stuck task
+    and breaks entirely when a worker dies; one process per job costs a fork
+    from the preloaded server (milliseconds) and isolates every fault.  Every
+    answer carries ``captured_output``.  ``guard`` (an active
+    :class:`InterruptGuard`) is checked between polls: on SIGTERM/SIGINT the
+    run raises :class:`RunInterrupted`; :meth:`close` kills what still runs.
+    """
+
+    def __init__(self, workers: int, guard: InterruptGuard | None = None):
+        self.workers = max(1, int(workers))
+        self.ctx = _context()
+        self.guard = guard or InterruptGuard()
+        self.running: dict = {}
+
+    def run(self, jobs: list[Job]):
+        """Yield ``(job_id, fields)`` as jobs finish (in completion order)."""
+        from multiprocessing.connection import wait
+
+        pending = list(jobs)
+        while pending or self.running:
+            self.guard.check()
+            while pending and len(self.running) < self.workers:
+                self._start(pending.pop(0))
+            for conn in wait(list(self.running), timeout=0.2):
+                yield self._finish(conn, self._receive(conn))
+            now = time.perf_counter()
+            for conn, w in list(self.running.items()):
+                if w.job.timeout_s is not None and now - w.started > w.job.timeout_s:
+                    yield self._finish(conn, timeout_fields(now - w.started, w.job.timeout_s))
+
+    def _start(self, job: Job) -> None:
+        capture = Capture()
+        iso = Isolation(os.getpid(), job.max_memory_mb)
+        receiver, sender = self.ctx.Pipe(duplex=False)
+        proc = self.ctx.Process(target=_pool_child, args=(job.payload, iso, sender, capture.sendable()),
+                                daemon=True)
+        proc.start()
+        sender.close()
+        self.running[receiver] = _Running(job, proc, time.perf_counter(), capture)
+
+    def _receive(self, conn) -> dict | None:
+        job = self.running[conn].job
+        try:
+            data = conn.recv_bytes(contract.MAX_PAYLOAD_BYTES)
+        except (EOFError, ConnectionError):
+            return None
+        except OSError as exc:
+            return {"status": "error", "message": f"worker result refused: {exc}"}
+        return contract.decode_fields(data, job.needs_energy)
+
+    def _finish(self, conn, fields: dict | None):
+        w = self.running.pop(conn)
+        conn.close()
+        if fields is None:
+            w.proc.join(5)                 # its own exit code first, then the group
+        end_worker(w.proc)
+        elapsed = time.perf_counter() - w.started
+        if fields is None:
+            fields = died_fields(w.proc.exitcode, elapsed)
+        fields.setdefault("seconds", elapsed)
+        fields["captured_output"] = w.capture.tail()
+        return w.job.job_id, fields
+
+    def close(self) -> None:
+        """Kill every running worker's process group, reap them, drop their captured output."""
+        while self.running:
+            conn, w = self.running.popitem()
+            conn.close()
+            end_worker(w.proc)
+            w.capture.close()
+
+
+def _subprocess_work(payload: bytes, timeout_s: float | None, max_memory_mb: float | None = None,
+                     needs_energy: bool = True) -> dict:
+    """Run a job in a fresh interpreter (for Dask workers, whose processes may not fork children)."""
+    import subprocess
+    import sys
+
+    t0 = time.perf_counter()
+    capture = Capture()
+    stdin = pickle.dumps((payload, Isolation(os.getpid(), max_memory_mb), capture.fd))
+    proc = subprocess.Popen([sys.executable, "-m", "benchsuite.runner"], stdin=subprocess.PIPE,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, pass_fds=(capture.fd,))
+    try:
+        out, err = proc.communicate(stdin, timeout=timeout_s)
+        tail = " | ".join(err.decode(errors="replace").strip().splitlines()[-3:])   # before its capture began
+        fields = (contract.decode_fields(out, needs_energy) if proc.returncode == 0 and out
+                  else died_fields(proc.returncode, time.perf_counter() - t0, tail))
+    except subprocess.TimeoutExpired:
+        fields = timeout_fields(time.perf_counter() - t0, timeout_s)
+    finally:
+        kill_group(proc.pid)
+        proc.kill()
+        proc.wait()
+    fields["captured_output"] = capture.tail()
+    return fields
+
+
+class DaskPool:
+    """Jobs on a Dask distributed cluster; each job runs in a subprocess of a Dask worker so that
+    its timeout really stops it and a crash cannot take the worker down.
+
+    An interrupt cancels the futures not yet finished; a job already running on
+    a Dask worker runs on until its own timeout (a Dask worker thread cannot be
+    stopped from here).
+    """
+
+    def __init__(self, address: str, guard: InterruptGuard | None = None):
+        from dask.distributed import Client
+
+        self.client = Client(address, timeout="20s")
+        self.guard = guard or InterruptGuard()
+        self.futures: dict = {}
+
+    def run(self, jobs: list[Job]):
+        from dask.distributed import TimeoutError as DaskTimeout
+        from dask.distributed import wait
+
+        futures = {self.client.submit(_subprocess_work, j.payload, j.timeout_s, j.max_memory_mb, j.needs_energy,
+                                      pure=False, key=j.job_id): j for j in jobs}
+        self.futures = futures
+        pending = set(futures)
+        while pending:
+            self.guard.check()
+            try:
+                done, pending = wait(pending, timeout=0.5, return_when="FIRST_COMPLETED")
+            except (DaskTimeout, TimeoutError):
+                continue
+            for fut in done:
+                yield futures[fut].job_id, self._result(fut, futures[fut])
+
+    @staticmethod
+    def _result(fut, job: Job) -> dict:
+        try:
+            raw = fut.result()
+        except Exception as exc:
+            return {"status": "error", "seconds": 0.0,
+                    "message": f"Dask task failed: {type(exc).__name__}: {bounded_text(str(exc), 2000)}"}
+        return contract.checked_fields(raw, job.needs_energy)
+
+    def close(self):
+        unfinished = [f for f in self.futures if not f.done()]
+        if unfinished:
+            self.client.cancel(unfinished)
+        self.client.close()
+
+
+@dataclass
+class GridConfig:
+    """How a grid runs: where, how many workers, time budgets, memory, cache, seed.
+
+    ``timeout_s`` is each method task's time budget (``None``:
+    :data:`DEFAULT_TIMEOUT_S`, ``math.inf``: none); ``max_memory_mb`` each
+    method worker's address-space limit in MiB (``None``:
+    :data:`DEFAULT_MAX_MEMORY_MB`, ``math.inf``: none).  Reference ladders get
+    ``reference_timeout_s`` (``None``: none) and no memory limit.
+    """
+
+    workers: int = 1
+    scheduler: str | None = None
+    timeout_s: float | None = None
+    reference_timeout_s: float | None = None
+    cache_dir: object = None
+    seed: int = 0
+    max_determinants: int = 5_000_000
+    max_memory_mb: float | None = DEFAULT_MAX_MEMORY_MB
+
+
+def _make_pool(cfg: GridConfig, guard: InterruptGuard):
+    return DaskPool(cfg.scheduler, guard) if cfg.scheduler else LocalPool(cfg.workers, guard)
+
+
+def run_grid(tasks: list[Task], methods: dict, cfg: GridConfig, on_result, progress=None) -> None:
+    """References once per (case, basis), then every task; ``on_result(task, fields, ladder)``
+    as each finishes (``ladder`` None when the reference ladder failed).
+
+    ``methods`` maps a task's method spec to ``(method_object, failure)`` from discovery;
+    a plugin that could not be loaded yields ``error`` fields for each of its tasks.
+
+    SIGTERM or SIGINT during the grid kills every worker's process group,
+    stops the fork server and raises :class:`RunInterrupted` (results already
+    passed to ``on_result`` are complete; the rest are missing, for ``--resume``).
+    """
+    with InterruptGuard() as guard:
+        pool = _make_pool(cfg, guard)
+        try:
+            _run_grid(tasks, methods, cfg, on_result, progress, pool)
+            guard.check()
+        finally:
+            pool.close()
+            if guard.signal_number is not None and isinstance(pool, LocalPool):
+                shutdown_forkserver()
+
+
+def _run_grid(tasks, methods, cfg, on_result, progress, pool) -> None:
+    from benchsuite.chem.cache import DiskCache
+    from benchsuite.chem.ladder import reference_ladder
+
+    pairs = {}
+    for t in tasks:
+        pairs.setdefault((t.case.name, t.basis.label), (t.case, t.basis))
+    jobs = [Job(f"ladder|{c}|{b}", pickle.dumps(ladder_job(case, basis, cfg.cache_dir, cfg.max_determinants)),
+                cfg.reference_timeout_s, needs_energy=False) for (c, b), (case, basis) in pairs.items()]
+    failed = {}
+    for job_id, fields in pool.run(jobs):
+        if fields.get("status") != "ok":
+            failed[tuple(job_id.split("|")[1:])] = fields.get("message", "reference ladder failed")
+        if progress:
+            _, case_name, basis_label = job_id.split("|")
+            progress.reference_done(f"{case_name}[{basis_label}]", fields)
+    cache = DiskCache(cfg.cache_dir)
+    ladders = {k: reference_ladder(case, basis, cache=cache, max_determinants=cfg.max_determinants)
+               for k, (case, basis) in pairs.items() if k not in failed}
+    by_key = {t.key: t for t in tasks}
+    timeout_s = budget(cfg.timeout_s, DEFAULT_TIMEOUT_S)
+    memory_mb = budget(cfg.max_memory_mb, DEFAULT_MAX_MEMORY_MB)
+    method_jobs = []
+    for t in tasks:
+        pair = (t.case.name, t.basis.label)
+        obj, failure = methods[t.method]
+        if pair in failed:
+            on_result(t, {"status": "error", "message": "reference ladder failed: "
+                          + failed[pair].strip().splitlines()[0]}, None)
+        elif obj is None:
+            on_result(t, {"status": "error", "message": f"plugin unusable: {failure.reason}"}, ladders[pair])
+        else:
+            try:
+                payload = pickle.dumps(method_job(t, obj, cfg.cache_dir, cfg.seed, timeout_s, cfg.max_determinants))
+            except Exception as exc:
+                on_result(t, unsendable_fields(exc), ladders[pair])
+                continue
+            method_jobs.append(Job(t.key, payload, timeout_s, memory_mb))
+    for key, fields in pool.run(method_jobs):
+        task = by_key[key]
+        on_result(task, fields, ladders[(task.case.name, task.basis.label)])
+
+
+def _stdin_main() -> None:
+    """The Dask path's worker: ``(payload, Isolation, capture fd)`` pickled on stdin, checked JSON on stdout."""
+    import sys
+
+    payload, iso, capture_fd = pickle.loads(sys.stdin.buffer.read())
+    answer = os.dup(1)                     # the real stdout; fd 1 becomes the capture file
+    data = _contained_work(payload, iso, capture_fd)
+    with os.fdopen(answer, "wb") as out:
+        out.write(data)
