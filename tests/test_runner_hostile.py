@@ -214,8 +214,7 @@ def _start_run(tmp_path, *extra):
     env = {**os.environ, "BENCHSUITE_DB": str(tmp_path / "r.sqlite"), "BENCHSUITE_CACHE": str(tmp_path / "c"),
            "PYTHONPATH": str(ROOT), "TMPDIR": str(tmp_path / "tmp"), marker.split("=")[0]: marker.split("=")[1]}
     cmd = [sys.executable, "-m", "benchsuite.cli", "run", "--case", "h2", "heh-cation",
-           "--method", f"{PLUGINS}:SleepsWithChild", "--method", "exact-sector", "--workers", "2",
-           "--option", f"{PLUGINS}:SleepsWithChild.wait_s=12", *extra]   # a wide window, even on a loaded machine
+           "--method", f"{PLUGINS}:SleepsWithChild", "--method", "exact-sector", "--workers", "2", *extra]
     proc = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 120
     while time.monotonic() < deadline and proc.poll() is None:
