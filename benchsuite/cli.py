@@ -461,7 +461,7 @@ def _add_compare(sub) -> None:
 
 
 def _run_compare(args) -> int:
-    from benchsuite.report.terminal import _baseline_lines
+    from benchsuite.report.terminal import baseline_lines
     from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_runs
     from benchsuite.store.db import ResultStore
 
@@ -472,7 +472,7 @@ def _run_compare(args) -> int:
         raise InputError("must not be negative", field="--max-increase-mha")
     comparison = compare_runs(store.get_run(base), store.results(base), store.get_run(new), store.results(new),
                               limit, args.allow_new)
-    print("\n".join(_baseline_lines(comparison.to_dict())))
+    print("\n".join(baseline_lines(comparison.to_dict())))
     print("comparison " + ("passed" if comparison.passed else "failed: " + "; ".join(comparison.problems())))
     return 0 if comparison.passed else 1
 

@@ -54,7 +54,7 @@ def _task_line(t: dict) -> str:
     return f"  {err}  {t['verdict']:<12s} {t['method']} on {t['case']} ({t['basis']}, {t['encoding']}){msg}"
 
 
-def _baseline_lines(b: dict) -> list[str]:
+def baseline_lines(b: dict) -> list[str]:
     lines = [f"baseline {b['base_id']}: {b['n_common']} common task(s), {b['regressions']} regression(s)"
              f" (|error| growth limit {b['max_increase_mha']:g} mHa)"]
     for c in b["changes"]:
@@ -92,7 +92,7 @@ def render_summary(run, rows, gate: dict) -> str:
         lines.append(f"stochastic fail claims: {st['procedure_name']} over {st['n_tasks']} task(s), "
                      f"{st['controls']} at {100 * st['level']:g} %")
     if gate["baseline"] is not None:
-        lines += _baseline_lines(gate["baseline"])
+        lines += baseline_lines(gate["baseline"])
     decision = "passed" if gate["passed"] else "failed: " + "; ".join(gate["reasons"])
     lines.append(f"gate {decision}")
     return "\n".join(lines)
