@@ -226,6 +226,11 @@ def _start_run(tmp_path, *extra):
     return proc, marker, env
 
 
+def _crash_notes(tmp_path) -> str:
+    """What an exit 3 left behind (the command writes its traceback to a crash note in TMPDIR)."""
+    return "".join(p.read_text(errors="replace") for p in (tmp_path / "tmp").glob("benchsuite-crash-*"))
+
+
 def _remaining_after(marker: str, seconds: float) -> list[int]:
     deadline = time.monotonic() + seconds
     while (left := _run_processes(marker)) and time.monotonic() < deadline:
@@ -241,7 +246,7 @@ def test_signal_stops_the_run_and_every_process(tmp_path, signum, code):
     proc, marker, _ = _start_run(tmp_path)
     proc.send_signal(signum)
     _, err = proc.communicate(timeout=60)
-    assert proc.returncode == code, err
+    assert proc.returncode == code, err + _crash_notes(tmp_path)
     assert "Traceback" not in err
     assert _remaining_after(marker, 5.0) == []
     assert list((tmp_path / "tmp").glob("benchsuite-output-*")) == []      # captured output files removed
@@ -263,14 +268,14 @@ def test_interrupted_run_is_marked_and_resumes_once(tmp_path):
     proc, marker, env = _start_run(tmp_path)
     proc.send_signal(signal.SIGTERM)
     _, err = proc.communicate(timeout=60)
-    assert proc.returncode == 143
+    assert proc.returncode == 143, err + _crash_notes(tmp_path)
     store = ResultStore.open(tmp_path / "r.sqlite", create=False)
     run = store.list_runs()[0]
     assert run.status == "interrupted"
     assert "interrupted" in err.strip().splitlines()[-1] and run.run_id in err.strip().splitlines()[-1]
     done = subprocess.run([sys.executable, "-m", "benchsuite.cli", "run", "--resume", run.run_id], env=env,
                           capture_output=True, text=True, timeout=300)
-    assert done.returncode in (0, 1), done.stderr
+    assert done.returncode in (0, 1), done.stderr + _crash_notes(tmp_path)
     keys = [r.task_key for r in ResultStore.open(tmp_path / "r.sqlite", create=False).results(run.run_id)]
     assert len(keys) == len(set(keys)) == 4
 
