@@ -69,7 +69,7 @@ def test_smoke_run_outputs_agree(gate, registry):
     assert suites["exact-sector"].get("failures") == "0"
 
 
-def test_passing_run_exits_zero_and_per_case_threshold(gate, scratch):
+def test_passing_run_exits_zero_and_command_line_threshold(gate):
     code, out, _ = gate("run", "--case", "h2", "heh-cation", "--method", "exact-sector")
     assert code == 0, out
     code, out, _ = gate("run", "--case", "h2", "--method", "hf-bitstring", "--threshold-mha", "50")

@@ -15,10 +15,20 @@ import pytest
 
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem, SectorState, resolve_options
-from benchsuite.methods.determinant import DeterminantSpace, ExponentialProduct, SectorHamiltonian
-from benchsuite.methods.ucc import AdaptVQE, UCCSDVQE, UpCCGSDVQE, first_order_guess, reference_singles_doubles
+from benchsuite.methods.determinant import (
+    DeterminantSpace,
+    ExponentialProduct,
+    SectorHamiltonian,
+)
+from benchsuite.methods.ucc import (
+    UCCSDVQE,
+    AdaptVQE,
+    UpCCGSDVQE,
+    first_order_guess,
+    reference_singles_doubles,
+)
 from benchsuite.qubit.metrics import apply_pauli
-from tests.methods.test_ucc_dense import fci_energy, make_problem
+from tests.methods.dense_route import fci_energy, make_problem
 
 CHEMICAL_ACCURACY_HA = 1.6e-3
 

@@ -54,10 +54,11 @@ def test_water_ccpvdz_ccsd_t_al_saidi(registry, cache):
 def test_water_ccpvdz_published_values_in_case_file(registry, cache):
     """Every published value in the h2o-olsen case file for cc-pVDZ that the ladder computes."""
     lad = reference_ladder(registry.case("h2o-olsen"), "cc-pvdz", cache=cache)
-    for pub in lad.published:
-        rung = lad.rung(pub.method)
-        if rung is not None and rung.energy_ha is not None:
-            assert rung.energy_ha == pytest.approx(pub.energy_ha, abs=1e-5)
+    computed = [(pub, lad.rung(pub.method)) for pub in lad.published]
+    computed = [(pub, rung) for pub, rung in computed if rung is not None and rung.status == "ok"]
+    assert computed, "the case file's published values name no rung the ladder computes"
+    for pub, rung in computed:
+        assert rung.energy_ha == pytest.approx(pub.energy_ha, abs=1e-5), pub.method
 
 
 def test_h2_basis_set_limit_pachucki(registry, cache):
