@@ -348,8 +348,9 @@ def pytest_sessionfinish(session, exitstatus) -> None:
 
 def solver_provenance(config) -> dict:
     """``{"package", "version", "commit", "dirty", "source"}`` of the solver under test: ``--bs-solver``,
-    else the ``[project] name`` of the rootdir's pyproject.toml (its git state read from the rootdir
-    when the distribution is not installed)."""
+    else the ``[project] name`` of the rootdir's pyproject.toml.  Version and git state are those of
+    the code actually imported (its ``__version__`` and the checkout holding it), falling back to the
+    installed distribution's record and then to the rootdir's checkout."""
     import tomllib
 
     from benchsuite.store.provenance import distribution_git_state, git_state
@@ -360,21 +361,30 @@ def solver_provenance(config) -> dict:
         name = tomllib.loads(pyproject.read_text()).get("project", {}).get("name")
     module = None if name is None else name.replace("-", "_")
     found = distribution_git_state(name, module)
-    if found.get("version") is None and module is not None:
-        found["version"] = _module_version(module)
-    if found.get("commit") is None:
-        found.update(git_state(config.rootpath), source=found.get("source") or str(config.rootpath))
+    version, where = _imported(module)
+    if version is not None:
+        found["version"] = version
+    for folder in ([where] if where is not None else []) + [Path(config.rootpath)]:
+        state = git_state(folder)
+        if state["commit"] is not None:
+            found.update(state, source=str(folder))
+            break
     return found
 
 
-def _module_version(module: str) -> str | None:
-    """``module.__version__`` when the solver runs from a checkout without being installed."""
+def _imported(module: str | None) -> tuple[str | None, Path | None]:
+    """``(__version__, folder)`` of the solver's top-level module as this session imports it."""
     import importlib
 
+    if module is None:
+        return None, None
     try:
-        return str(importlib.import_module(module).__version__)
+        mod = importlib.import_module(module)
     except Exception:
-        return None
+        return None, None
+    version = getattr(mod, "__version__", None)
+    origin = getattr(mod, "__file__", None)
+    return (None if version is None else str(version)), (None if origin is None else Path(origin).parent)
 
 
 def _run_record(config, state: SessionState, run_id: str, rows: list):
