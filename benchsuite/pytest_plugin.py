@@ -25,8 +25,9 @@ Every recorded result of a session is stored as ONE run in the results database
 ``--bs-solver``, and each row's pytest node id), so ``benchsuite runs``, ``compare``,
 ``report`` and ``table`` work on it.  The run's gate decision is computed once at the end
 (:func:`benchsuite.gate.decision.decide`, with ``--bs-baseline``); if it fails -- a baseline
-regression, say -- the session fails.  Under pytest-xdist only the controller writes: workers
-send their rows in ``workeroutput``.  A test that used pytest-benchmark's ``benchmark``
+regression, say -- the session fails.  Under pytest-xdist only the controller writes the
+database: each worker appends its rows to a spool file (synced as each test finishes) in a folder
+the controller made, and the controller reads them all at the end.  A test that used pytest-benchmark's ``benchmark``
 fixture (and ran with benchmarking enabled) gets its mean time per round as the row's
 ``seconds`` and the statistics in ``metadata["benchmark"]``.
 """
@@ -41,7 +42,7 @@ import pytest
 
 MARKER = "benchsuite_cases"
 DEFAULT_SUITE = "smoke"
-_ROWS_KEY = "benchsuite_rows"
+_SPOOL_KEY = "benchsuite_spool"
 
 
 class AccuracyError(AssertionError):
@@ -91,11 +92,13 @@ class SessionState:
     rows: dict = field(default_factory=dict)        # task_key -> ResultRow (the controller's)
     run_id: str | None = None
     decision: object = None
+    error: str | None = None
 
 
 _STATE = pytest.StashKey[SessionState]()
 _ITEM_ROWS = pytest.StashKey[list]()
 _ITEM_START = pytest.StashKey[float]()
+_SPOOL = pytest.StashKey[Path]()
 
 
 def is_worker(config) -> bool:
@@ -137,15 +140,33 @@ def _make_state(config) -> SessionState:
 
 
 def pytest_sessionstart(session) -> None:
-    """On the controller, resolve ``--bs-baseline`` before any test runs (a bad id is a usage error)."""
+    """Check ``--bs-suite`` / ``--bs-case`` and, on the controller, resolve ``--bs-baseline`` before any
+    test runs: a bad name or id is a usage error."""
     config = session.config
-    spec = config.getoption("bs_baseline")
-    if spec is None or is_worker(config):
-        return
+    opt = config.getoption
+    if not (opt("bs_suite") or opt("bs_case") or opt("bs_db") or opt("bs_baseline")):
+        return                                     # inert in sessions that do not use benchsuite
+    from benchsuite import api
     from benchsuite.errors import InputError
     from benchsuite.store.db import ResultStore
 
     state = _state(config)
+    if state.suite or state.cases:
+        try:
+            api.select(state.suite, state.cases or None, state.settings.basis)
+        except InputError as exc:
+            raise pytest.UsageError(f"benchsuite: {exc}") from None
+    if is_worker(config):
+        return
+    from benchsuite.gate.plan import check_output_path
+
+    try:
+        check_output_path(state.db, "--bs-db")
+    except InputError as exc:
+        raise pytest.UsageError(f"benchsuite: {exc}") from None
+    spec = config.getoption("bs_baseline")
+    if spec is None:
+        return
     try:
         with ResultStore.open(state.db, create=False) as store:
             state.baseline_id = store.resolve_run_id(spec)
@@ -313,22 +334,60 @@ def pytest_runtest_call(item):
 
 
 def _collect(config, rows) -> None:
-    """Rows finished by one test: kept by the controller, sent to it by an xdist worker."""
+    """Rows finished by one test: kept by the controller; an xdist worker appends them to its spool file."""
     if is_worker(config):
-        config.workeroutput.setdefault(_ROWS_KEY, []).extend(r.to_json_dict() for r in rows)
+        _spool_rows(config, rows)
         return
     state = _state(config)
     for r in rows:
         state.rows[r.task_key] = r
 
 
+def _spool_rows(config, rows) -> None:
+    """One JSON line per row in ``<spool>/<worker id>-<pid>.jsonl``, flushed and synced before the
+    test is reported, so a worker that dies later loses nothing already finished."""
+    import json
+    import os
+
+    path = Path(config.workerinput[_SPOOL_KEY]) / f"{config.workerinput.get('workerid', 'w')}-{os.getpid()}.jsonl"
+    with open(path, "a", encoding="utf-8") as fh:
+        for r in rows:
+            fh.write(json.dumps(r.to_json_dict(), allow_nan=False) + "\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
 @pytest.hookimpl(optionalhook=True)
-def pytest_testnodedown(node, error) -> None:
-    """xdist controller: take in a finished worker's rows."""
+def pytest_configure_node(node) -> None:
+    """xdist controller, for each worker it starts: the spool folder the worker writes its rows to."""
+    import tempfile
+
+    config = node.config
+    if _SPOOL not in config.stash:
+        config.stash[_SPOOL] = Path(tempfile.mkdtemp(prefix="benchsuite-spool-"))
+    node.workerinput[_SPOOL_KEY] = str(config.stash[_SPOOL])
+
+
+def _read_spool(config) -> None:
+    """The controller takes in every worker's rows (a torn last line of a killed worker is skipped)
+    and removes the spool folder."""
+    import json
+    import shutil
+
     from benchsuite.store.records import ResultRow
 
-    rows = (getattr(node, "workeroutput", None) or {}).get(_ROWS_KEY, [])
-    _collect(node.config, [ResultRow(**doc) for doc in rows])
+    folder = config.stash.get(_SPOOL, None)
+    if folder is None:
+        return
+    rows = []
+    for path in sorted(folder.glob("*.jsonl")):
+        for line in path.read_text(encoding="utf-8").splitlines():
+            try:
+                rows.append(ResultRow(**json.loads(line)))
+            except (ValueError, TypeError):
+                continue
+    _collect(config, rows)
+    shutil.rmtree(folder, ignore_errors=True)
 
 
 # -- the session's run ---------------------------------------------------------------------
@@ -336,12 +395,23 @@ def pytest_testnodedown(node, error) -> None:
 @pytest.hookimpl(tryfirst=True)
 def pytest_sessionfinish(session, exitstatus) -> None:
     config = session.config
-    if is_worker(config) or _STATE not in config.stash or not config.stash[_STATE].rows:
+    if is_worker(config):
         return
-    if config.getoption("bs_no_store"):
+    _read_spool(config)
+    if _STATE not in config.stash or not config.stash[_STATE].rows or config.getoption("bs_no_store"):
         return
+    import sqlite3
+
+    from benchsuite.errors import InputError
+
     state = config.stash[_STATE]
-    state.decision, state.run_id = store_session_run(config, state)
+    try:
+        state.decision, state.run_id = store_session_run(config, state)
+    except (InputError, OSError, sqlite3.Error, ValueError) as exc:
+        state.error = f"the session's results were not stored: {exc}"
+        session.exitstatus = pytest.ExitCode.USAGE_ERROR if isinstance(exc, InputError) \
+            else pytest.ExitCode.INTERNAL_ERROR
+        return
     if not state.decision.passed and session.exitstatus == 0:
         session.exitstatus = pytest.ExitCode.TESTS_FAILED
 
@@ -440,12 +510,15 @@ def store_session_run(config, state: SessionState):
 
 def pytest_terminal_summary(terminalreporter, exitstatus, config) -> None:
     state = config.stash.get(_STATE, None)
+    tr = terminalreporter
+    if getattr(state, "error", None):
+        tr.write_sep("-", "benchsuite")
+        tr.write_line(state.error)
     decision = getattr(state, "decision", None)
     if decision is None:
         return
     from benchsuite.report.terminal import baseline_lines
 
-    tr = terminalreporter
     tr.write_sep("-", "benchsuite")
     counts = ", ".join(f"{k} {v}" for k, v in sorted(decision.counts.items()))
     tr.write_line(f"run {state.run_id}: {decision.n_tasks} result(s) ({counts}) stored in {state.db}")

@@ -134,3 +134,14 @@ def test_benchmark_time_is_stored_beside_the_accuracy(tmp_path, cache_dir):
     bench = row.metadata["benchmark"]
     assert bench["rounds"] == 3 and row.seconds == bench["mean_s"] and bench["min_s"] <= bench["mean_s"]
     assert row.verdict == "pass"
+
+
+def test_bad_selection_and_unusable_database_are_usage_errors(tmp_path, cache_dir):
+    repo = solver_repo(tmp_path, "tallowick-fixed", FIX)
+    unknown = run_pytest(repo, tmp_path / "r.sqlite", cache_dir, "--bs-suite", "no-such-suite")
+    assert unknown.returncode == pytest.ExitCode.USAGE_ERROR and "unknown suite 'no-such-suite'" in unknown.stderr
+    folder = tmp_path / "a-folder"
+    folder.mkdir()
+    proc = run_pytest(repo, folder, cache_dir, "--bs-case=h2")
+    assert proc.returncode == pytest.ExitCode.USAGE_ERROR and "is a directory" in proc.stderr
+    assert "passed" not in proc.stdout                     # refused before any test ran

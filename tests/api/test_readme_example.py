@@ -31,3 +31,12 @@ def test_readme_api_example_runs(tmp_path, monkeypatch, capsys, cache_dir):
         ("heh-cation", "exact-sector", "pass"), ("heh-cation", "hf-bitstring", "fail")])
     assert namespace["prepared"].problem.n_qubits < 12      # LiH STO-3G: 12 spin orbitals before tapering
     assert namespace["refs"].primary_energy_ha == pytest.approx(namespace["exact"], abs=1e-8)
+
+
+def test_readme_shows_the_tallowick_test_file_as_it_is():
+    shown = re.search(r"accuracy test\n\(`examples/tallowick/tests/test_accuracy.py`\):\n\n```python\n(.*?)```",
+                      README.read_text(), re.S)
+    assert shown, "README lost the plugin example"
+    source = (README.parent / "examples" / "tallowick" / "tests" / "test_accuracy.py").read_text()
+    assert source.split('"""\n\n', 1)[1] == shown.group(1)
+    assert len(source.splitlines()) <= 10
