@@ -145,3 +145,34 @@ def test_bad_selection_and_unusable_database_are_usage_errors(tmp_path, cache_di
     proc = run_pytest(repo, folder, cache_dir, "--bs-case=h2")
     assert proc.returncode == pytest.ExitCode.USAGE_ERROR and "is a directory" in proc.stderr
     assert "passed" not in proc.stdout                     # refused before any test ran
+
+
+@pytest.mark.slow
+def test_entry_point_in_a_fresh_environment(tmp_path, cache_dir):
+    """benchsuite's wheel in a new venv (other dependencies borrowed read-only through a .pth line, as in
+    tests/test_packaging.py): pytest finds the plugin through the pytest11 entry point alone."""
+    import sysconfig
+
+    def ok(cmd, **kw):
+        proc = subprocess.run(cmd, capture_output=True, text=True, timeout=900, **kw)
+        assert proc.returncode == 0, f"{cmd}\n{proc.stdout}\n{proc.stderr}"
+        return proc
+
+    ok([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(tmp_path / "dist"), str(REPO)])
+    venv = tmp_path / "venv"
+    ok([sys.executable, "-m", "venv", str(venv)])
+    py = venv / "bin" / "python"
+    site = ok([str(py), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"]).stdout.strip()
+    Path(site, "borrowed-dependencies.pth").write_text(sysconfig.get_paths()["purelib"] + "\n")
+    ok([str(py), "-m", "pip", "install", "-q", "--no-deps", str(next((tmp_path / "dist").glob("benchsuite-*.whl")))])
+    repo = solver_repo(tmp_path, "tallowick-fixed", FIX)
+    env = {k: v for k, v in os.environ.items() if not k.startswith("PYTEST_") and k != "PYTHONPATH"}
+    env.update(PYTHONPATH=str(repo), BENCHSUITE_CACHE=str(cache_dir))
+    proc = subprocess.run([str(py), "-m", "pytest", "-p", "no:cacheprovider", "--bs-suite", "smoke",
+                           f"--bs-db={tmp_path / 'r.sqlite'}"], cwd=repo, env=env, capture_output=True, text=True,
+                          timeout=900)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert "benchsuite-0.1.0" in proc.stdout and "6 passed" in proc.stdout      # the plugins line names it
+    runs = subprocess.run([str(venv / "bin" / "benchsuite"), "runs", "--db", str(tmp_path / "r.sqlite")],
+                          env=env, capture_output=True, text=True, timeout=300)
+    assert runs.returncode == 0 and "pytest  smoke  tallowick" in runs.stdout
