@@ -191,7 +191,8 @@ def assess(problem: PreparedProblem, energy: float | MethodResult, *, stderr_ha:
            state: Any = None, converged: bool | None = None, variational: bool = True,
            threshold_mha: float | None = None, confidence: float = 0.95, require_converged: bool = False,
            suite: str | None = None, method_name: str = "api", registry: Registry | None = None) -> Assessment:
-    """Judge an energy (Eh) or a :class:`MethodResult` exactly as the gate does (see :func:`judge`);
+    """Judge an energy (Eh; ``stderr_ha`` in Eh, ``threshold_mha`` in mHa) or a :class:`MethodResult`
+    exactly as the gate does (see :func:`judge`);
     ``registry`` is where the case's own threshold is looked up (default the built-in one)."""
     result = energy if isinstance(energy, MethodResult) else MethodResult(
         energy_ha=energy, stderr_ha=stderr_ha, converged=True if converged is None else converged, state=state)
@@ -249,7 +250,9 @@ def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str
     """Run the gate (every method on every selected case) and return its results as a DataFrame.
 
     ``methods`` are specs as on the command line (built-in name, entry-point name or
-    ``module:attr``); ``options`` maps a method spec to its option values.  The run is stored in
+    ``module:attr``); ``options`` maps a method spec to its option values; ``threshold_mha`` (mHa)
+    overrides every case's threshold; ``timeout_s`` is each task's time budget in seconds; ``workers``
+    worker processes run the grid.  The run is stored in
     the results database ``db`` (default ``$BENCHSUITE_DB`` or ``.benchsuite/results.sqlite``);
     ``baseline`` (a run id, prefix or ``latest``) adds a regression check.  The frame has one row
     per task (columns as ``benchsuite export``: ``energy_ha``, ``error_mha``, ``verdict``, ...);

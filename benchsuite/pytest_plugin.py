@@ -99,6 +99,7 @@ _STATE = pytest.StashKey[SessionState]()
 _ITEM_ROWS = pytest.StashKey[list]()
 _ITEM_START = pytest.StashKey[float]()
 _SPOOL = pytest.StashKey[Path]()
+_STARTED = pytest.StashKey[str]()
 
 
 def is_worker(config) -> bool:
@@ -136,13 +137,17 @@ def _make_state(config) -> SessionState:
     settings = RunSettings(basis=opt("bs_basis"), threshold_mha=threshold, encoding=asdict(enc))
     return SessionState(settings=settings, encoding=enc, suite=opt("bs_suite"), cases=list(opt("bs_case")),
                         threshold_mha=threshold, db=Path(opt("bs_db") or default_db_path()),
-                        cache_dir=opt("bs_cache_dir"), baseline_id=None, started_at=utc_now())
+                        cache_dir=opt("bs_cache_dir"), baseline_id=None,
+                        started_at=config.stash.get(_STARTED, None) or utc_now())
 
 
 def pytest_sessionstart(session) -> None:
     """Check ``--bs-suite`` / ``--bs-case`` and, on the controller, resolve ``--bs-baseline`` before any
     test runs: a bad name or id is a usage error."""
     config = session.config
+    from benchsuite.store.records import utc_now
+
+    config.stash[_STARTED] = utc_now()
     opt = config.getoption
     if not (opt("bs_suite") or opt("bs_case") or opt("bs_db") or opt("bs_baseline")):
         return                                     # inert in sessions that do not use benchsuite
@@ -471,7 +476,7 @@ def _run_record(config, state: SessionState, run_id: str, rows: list):
     solver = solver_provenance(config)
     nodes = sorted({r.metadata.get("pytest_node", "") for r in rows})
     suite = state.suite or (None if state.cases else DEFAULT_SUITE)
-    return replace(run, suite=suite, plugin_git={m: solver for m in methods},
+    return replace(run, started_at=state.started_at, suite=suite, plugin_git={m: solver for m in methods},
                    summary={**run.summary, "source": "pytest", "solver": solver,
                             "pytest": {"rootdir": str(config.rootpath), "nodes": nodes,
                                        "workers": getattr(config.option, "numprocesses", None)}})

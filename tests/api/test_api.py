@@ -20,6 +20,15 @@ def test_every_public_name_is_documented():
         if callable(obj):
             assert (inspect.getdoc(obj) or "").strip(), name
     assert "hartree" in api.__doc__ and "millihartree" in api.__doc__
+    for name in api.__all__:                     # a name with a quantity in it says the unit
+        obj = getattr(api, name)
+        if callable(obj) and not isinstance(obj, type):
+            params = [p for p in inspect.signature(obj).parameters if p.endswith(("_ha", "_mha", "_s"))]
+            doc = inspect.getdoc(obj)
+            for p in params:
+                unit = {"_ha": ("Eh", "hartree"), "_mha": ("mHa",), "_s": ("second",)}[
+                    next(k for k in ("_mha", "_ha", "_s") if p.endswith(k))]
+                assert any(u in doc for u in unit), (name, p)
 
 
 def test_selection():
