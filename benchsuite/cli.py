@@ -464,6 +464,8 @@ def _run_compare(args) -> int:
     from benchsuite.api import compare
     from benchsuite.report.terminal import baseline_lines
 
+    if args.max_increase_mha is not None and args.max_increase_mha < 0:
+        raise InputError("must not be negative", field="--max-increase-mha")
     comparison = compare(args.base, args.new, _db_path(args), args.max_increase_mha, args.allow_new)
     print("\n".join(baseline_lines(comparison.to_dict())))
     print("comparison " + ("passed" if comparison.passed else "failed: " + "; ".join(comparison.problems())))

@@ -75,6 +75,8 @@ def test_exact_solver_passes_and_the_run_is_listed(tmp_path, cache_dir, run_cli)
     assert "tests/test_accuracy.py::test_tallowick_energy[heh-cation/sto-3g]" in run.summary["pytest"]["nodes"]
     code, out, _ = run_cli("table", "latest", "--db", str(db), "--format", "csv")
     assert code == 0 and out.count("tallowick") == 6
+    code, out, _ = run_cli("report", listed["run_id"][:14], "--db", str(db), "--out", str(tmp_path / "r.html"))
+    assert code == 0 and "gate passed" in out and "tallowick" in (tmp_path / "r.html").read_text()
 
 
 def test_sector_bug_fails_naming_the_case_and_the_error(tmp_path, cache_dir):
