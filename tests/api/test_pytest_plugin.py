@@ -178,3 +178,22 @@ def test_entry_point_in_a_fresh_environment(tmp_path, cache_dir):
     runs = subprocess.run([str(venv / "bin" / "benchsuite"), "runs", "--db", str(tmp_path / "r.sqlite")],
                           env=env, capture_output=True, text=True, timeout=300)
     assert runs.returncode == 0 and "pytest  smoke  tallowick" in runs.stdout
+
+
+def test_marker_and_options_choose_the_cases_with_readable_ids(tmp_path, cache_dir):
+    repo = solver_repo(tmp_path, "tallowick-fixed", FIX)
+    (repo / "tests" / "test_pinned.py").write_text(
+        "import pytest\n\n\n"
+        "@pytest.mark.benchsuite_cases('h2', 'heh-cation')\n"
+        "def test_pinned(bs_case):\n"
+        "    assert bs_case.case.name in ('h2', 'heh-cation')\n")
+    listed = run_pytest(repo, tmp_path / "r.sqlite", cache_dir, "--co", "-q").stdout.splitlines()
+    ids = [ln.split("::", 1)[1] for ln in listed if "::" in ln]
+    assert ids == ["test_tallowick_energy[h2/sto-3g]", "test_tallowick_energy[h2-1p4-bohr/sto-3g]",
+                   "test_tallowick_energy[heh-cation/sto-3g]", "test_tallowick_energy[lih/sto-3g]",
+                   "test_tallowick_energy[h4-square/sto-3g]", "test_tallowick_energy[oh/sto-3g]",
+                   "test_pinned[h2/sto-3g]", "test_pinned[heh-cation/sto-3g]"]     # default: the smoke suite
+    listed = run_pytest(repo, tmp_path / "r.sqlite", cache_dir, "--co", "-q", "--bs-case=lih",
+                        "--bs-basis=6-31g").stdout.splitlines()
+    ids = [ln.split("::", 1)[1] for ln in listed if "::" in ln]
+    assert ids == ["test_tallowick_energy[lih/6-31g]", "test_pinned[h2/6-31g]", "test_pinned[heh-cation/6-31g]"]
