@@ -461,20 +461,33 @@ def _add_compare(sub) -> None:
 
 
 def _run_compare(args) -> int:
+    from benchsuite.api import compare
     from benchsuite.report.terminal import baseline_lines
-    from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_runs
-    from benchsuite.store.db import ResultStore
 
-    store = ResultStore.open(_db_path(args), create=False)
-    base, new = store.resolve_run_id(args.base), store.resolve_run_id(args.new)
-    limit = DEFAULT_MAX_INCREASE_MHA if args.max_increase_mha is None else args.max_increase_mha
-    if limit < 0:
+    if args.max_increase_mha is not None and args.max_increase_mha < 0:
         raise InputError("must not be negative", field="--max-increase-mha")
-    comparison = compare_runs(store.get_run(base), store.results(base), store.get_run(new), store.results(new),
-                              limit, args.allow_new)
+    comparison = compare(args.base, args.new, _db_path(args), args.max_increase_mha, args.allow_new)
     print("\n".join(baseline_lines(comparison.to_dict())))
     print("comparison " + ("passed" if comparison.passed else "failed: " + "; ".join(comparison.problems())))
     return 0 if comparison.passed else 1
+
+
+def _add_runs(sub) -> None:
+    p = sub.add_parser("runs", help="stored runs, newest first: id, date, suite, methods, verdicts, commit")
+    p.add_argument("--limit", type=int, default=None, help="at most this many runs")
+    p.add_argument("--format", choices=("table", "json"), default="table")
+    p.add_argument("--db", type=Path, default=None)
+
+
+def _run_runs(args) -> int:
+    from benchsuite.api import list_runs
+    from benchsuite.report.runs import runs_json, runs_table
+
+    if args.limit is not None and args.limit < 1:
+        raise InputError("must be positive", field="--limit")
+    summaries = list_runs(_db_path(args), args.limit)
+    print(runs_json(summaries) if args.format == "json" else runs_table(summaries))
+    return 0
 
 
 def _add_export(sub) -> None:
@@ -528,6 +541,7 @@ COMMANDS = {
     "solve": (_add_solve, _run_solve),
     "run": (_add_run, _run_run),
     "compare": (_add_compare, _run_compare),
+    "runs": (_add_runs, _run_runs),
     "export": (_add_export, _run_export),
     "report": (_add_report, _run_report),
     "table": (_add_table, _run_table),

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from benchsuite.scoring import error_mha, stochastic_verdicts, verdict
+from benchsuite.scoring import Judgement, error_mha, stochastic_verdicts, verdict
 from benchsuite.store.records import ResultRow, utc_now
 
 
@@ -38,6 +38,14 @@ def _scf_record(ladder) -> dict:
             "flags": list(ladder.scf.flags)}
 
 
+def judge_fields(fields: dict, reference_ha: float | None, threshold_mha: float, settings) -> Judgement:
+    """The per-task verdict of a finished task's ``fields`` (status, energy_ha, stderr_ha, converged)
+    against the primary reference energy (Eh) and a threshold (mHa), judged with ``settings``
+    (confidence, require_converged).  Shared by the gate and :func:`benchsuite.api.judge`."""
+    return verdict(fields.get("status", "error"), fields.get("energy_ha"), reference_ha, threshold_mha,
+                   fields.get("stderr_ha"), settings.confidence, fields.get("converged"), settings.require_converged)
+
+
 def task_row(run_id: str, task, fields: dict, ladder, plan) -> ResultRow:
     """A finished task (the worker's ``fields``) as a stored row with its per-task verdict."""
     primary = None if ladder is None else ladder.primary
@@ -45,9 +53,7 @@ def task_row(run_id: str, task, fields: dict, ladder, plan) -> ResultRow:
     threshold = plan.threshold_for(task.case)
     status = fields.get("status", "error")
     energy = fields.get("energy_ha")
-    s = plan.settings
-    judgement = verdict(status, energy, primary.energy_ha if ref_ok else None, threshold,
-                        fields.get("stderr_ha"), s.confidence, fields.get("converged"), s.require_converged)
+    judgement = judge_fields(fields, primary.energy_ha if ref_ok else None, threshold, plan.settings)
     problem = fields.get("problem", {})
     return ResultRow(
         run_id=run_id, task_key=task.key, case=task.case.name, basis=task.basis.label,

@@ -76,6 +76,14 @@ class QubitProblem:
     def hf_bitstring(self) -> str:
         return self.hamiltonian.hf_bitstring()
 
+    @property
+    def views(self):
+        """Exact declared-spin energy, OpenFermion / SciPy / plain-pair forms, FCIDUMP text
+        (:class:`benchsuite.methods.views.ProblemViews`)."""
+        from benchsuite.methods.views import ProblemViews
+
+        return ProblemViews(self)
+
 
 @dataclass(frozen=True)
 class SectorState:

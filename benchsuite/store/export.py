@@ -60,9 +60,14 @@ def flat_row(row: ResultRow) -> dict:
 
 def results_dataframe(store, run_id: str):
     """The run's results as a DataFrame, one row per task, ordered by task key."""
+    return rows_dataframe(store.results(run_id))
+
+
+def rows_dataframe(rows: list[ResultRow]):
+    """Result rows as a DataFrame of flat columns (:func:`flat_row`), typed by :data:`DTYPES`."""
     import pandas as pd
 
-    records = [flat_row(r) for r in store.results(run_id)]
+    records = [flat_row(r) for r in rows]
     frame = pd.DataFrame.from_records(records, columns=None if records else list(SCALARS))
     for column, dtype in DTYPES.items():
         if column in frame:

@@ -1,0 +1,339 @@
+"""benchsuite's public Python API: one module, stable names, for notebooks and a solver's own tests.
+
+Units: energies in hartree (``*_ha``), errors and thresholds in millihartree
+(``*_mha``), times in seconds.  Sign: ``error = E_method - E_reference``.
+
+>>> from benchsuite import api
+>>> problem = api.build_problem("h2")                 # case, basis, encoding, ordering, reductions
+>>> refs = api.references(problem)                    # ladder, primary reference (FCI/CASCI)
+>>> exact = problem.problem.views.exact_energy_ha()   # what a perfect solver returns
+>>> api.judge(problem, exact).verdict                 # the gate's own Judgement
+'pass'
+
+Selection: :func:`load_registry`, :func:`load_case`, :func:`load_suite`,
+:func:`select`.  The problem a method sees: :func:`build_problem` (a
+:class:`~benchsuite.methods.problem.PreparedProblem`; ``.problem`` is the
+:class:`~benchsuite.methods.base.QubitProblem` handed to ``Method.run``, with
+``.views`` for other formats).  References: :func:`references`.  Verdicts:
+:func:`judge` (the :class:`~benchsuite.scoring.Judgement` the gate stores) and
+:func:`assess` (the same with the result fields, reference and threshold
+source).  Runs: :func:`run_methods` (a gate run, stored, as a pandas
+DataFrame), :func:`open_store`, :func:`list_runs`, :func:`load_run`,
+:func:`compare`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from benchsuite.errors import InputError
+from benchsuite.gate.judge import judge_fields
+from benchsuite.gate.plan import RunSettings, threshold_for
+from benchsuite.methods.base import MethodResult
+from benchsuite.methods.problem import Encoding, PreparedProblem
+from benchsuite.registry import Registry
+from benchsuite.registry.case import Case
+from benchsuite.registry.registry import SuiteEntry
+from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, Judgement
+
+__all__ = ["Assessment", "Encoding", "Judgement", "PreparedProblem", "References", "StoredRun", "assess",
+           "build_problem", "compare", "judge", "list_runs", "load_case", "load_registry", "load_run",
+           "load_suite", "open_store", "references", "run_methods", "select", "DEFAULT_THRESHOLD_MHA"]
+
+_REGISTRY: Registry | None = None
+
+
+# -- cases and suites -----------------------------------------------------------------
+
+def load_registry(case_dirs: list[str | Path] = (), case_files: list[str | Path] = ()) -> Registry:
+    """The built-in registry plus extra case directories and files (validated; InputError on bad input).
+
+    With no arguments the built-in registry is loaded once and reused.
+    """
+    global _REGISTRY
+    if not case_dirs and not case_files:
+        if _REGISTRY is None:
+            _REGISTRY = Registry.load()
+        return _REGISTRY
+    return Registry.load(case_dirs=[Path(p) for p in case_dirs], case_files=[Path(p) for p in case_files])
+
+
+def load_case(name: str, registry: Registry | None = None) -> Case:
+    """One case by name (geometry in bohr inside, charge, multiplicity, bases, orbital space)."""
+    return (registry or load_registry()).case(name)
+
+
+def load_suite(name: str, basis: str | None = None, registry: Registry | None = None) -> list[SuiteEntry]:
+    """A suite's (case, basis) entries in its file's order; ``basis`` overrides the suite's basis."""
+    return (registry or load_registry()).suite_entries(name, basis)
+
+
+def select(suite: str | None = None, cases: list[str] | None = None, basis: str | None = None,
+           registry: Registry | None = None) -> list[SuiteEntry]:
+    """(case, basis) entries of a suite, or of case names / scan names / shell patterns."""
+    reg = registry or load_registry()
+    if suite and cases:
+        raise InputError("give a suite or case names, not both", field="cases")
+    if suite:
+        return reg.suite_entries(suite, basis)
+    if not cases:
+        raise InputError("give a suite or at least one case name", field="cases")
+    return reg.named_entries(list(cases), basis)
+
+
+# -- the problem and its references ---------------------------------------------------
+
+def build_problem(case: str | Case, basis: str | None = None, encoding: str = "jordan-wigner",
+                  ordering: str = "interleaved", taper: bool = False, two_qubit_reduction: bool = False,
+                  cache_dir: str | Path | None = None, seed: int = 0,
+                  registry: Registry | None = None) -> PreparedProblem:
+    """The problem a method under test sees, exactly as the gate builds it.
+
+    ``case`` is a name or a :class:`Case`; ``basis`` a label of the case (default its first).
+    ``encoding`` is jordan-wigner, bravyi-kitaev or parity; ``ordering`` interleaved
+    (mode 2p = orbital p alpha) or blocked; ``taper`` Z2-tapers in the Hartree-Fock sector;
+    ``two_qubit_reduction`` (parity + blocked only).  The reference ladder is computed (or read
+    from the cache at ``cache_dir``, default ``$BENCHSUITE_CACHE`` or ``.benchsuite/cache``).
+    """
+    from benchsuite.chem.cache import DiskCache, default_cache_dir
+    from benchsuite.methods.problem import build_problem as _build
+
+    if isinstance(case, str):
+        case = load_case(case, registry)
+    enc = Encoding(encoding, ordering, taper, two_qubit_reduction).check()
+    cache = DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir())
+    return _build(case, case.basis(basis), enc, cache=cache, seed=seed)
+
+
+@dataclass(frozen=True)
+class References:
+    """A problem's references (hartree).
+
+    ``primary_method`` is ``fci`` or ``casci`` in the method's orbital space and
+    ``primary_energy_ha`` its energy (None if it was skipped: ``primary_status`` says why).
+    ``uncertainty_ha`` is None for these deterministic rungs (exact within the model);
+    ``ladder`` is the whole :class:`~benchsuite.chem.ladder.Ladder` (HF, MP2, CCSD, CCSD(T), ...),
+    ``published`` the case file's published values with their sources.
+    """
+
+    case: str
+    basis: str
+    space: str
+    primary_method: str | None
+    primary_energy_ha: float | None
+    primary_status: str
+    uncertainty_ha: float | None
+    rungs: dict[str, float | None]
+    published: list
+    ladder: Any = field(repr=False)
+
+
+def references(problem: PreparedProblem) -> References:
+    """The references of a built problem (see :func:`build_problem`)."""
+    lad = problem.ladder
+    primary = lad.primary
+    ok = primary is not None and primary.status == "ok"
+    return References(case=lad.case, basis=lad.basis, space=lad.space.label,
+                      primary_method=None if primary is None else primary.method,
+                      primary_energy_ha=primary.energy_ha if ok else None,
+                      primary_status="missing" if primary is None else primary.status,
+                      uncertainty_ha=getattr(primary, "uncertainty_ha", None) if ok else None,
+                      rungs={r.method: r.energy_ha for r in lad.rungs}, published=list(lad.published), ladder=lad)
+
+
+# -- verdicts ------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Assessment:
+    """One energy judged as the gate judges a task.
+
+    ``fields`` are the result fields the gate would store (``status``: ok, below-exact, invalid,
+    ...), ``judgement`` the gate's :class:`~benchsuite.scoring.Judgement` (verdict, error in mHa,
+    threshold in mHa, message), ``threshold_source`` where the threshold came from.
+    """
+
+    case: str
+    basis: str
+    energy_ha: float | None
+    reference_method: str | None
+    reference_energy_ha: float | None
+    threshold_mha: float
+    threshold_source: str
+    fields: dict
+    judgement: Judgement
+
+    @property
+    def verdict(self) -> str:
+        return self.judgement.verdict
+
+    @property
+    def error_mha(self) -> float | None:
+        return self.judgement.error_mha
+
+    @property
+    def message(self) -> str:
+        return self.judgement.message or self.fields.get("message", "")
+
+
+def result_fields(problem: PreparedProblem, result: MethodResult, method_name: str = "api",
+                  variational: bool = True) -> dict:
+    """The gate's checked fields of a :class:`MethodResult` (contract checks and the below-exact test
+    against the primary reference), as a worker would send them."""
+    from benchsuite.runner import validate_result
+
+    ref = problem.reference
+    return validate_result(result, method_name, None if ref is None else ref.energy_ha, variational)
+
+
+def assess(problem: PreparedProblem, energy: float | MethodResult, *, stderr_ha: float | None = None,
+           state: Any = None, converged: bool | None = None, variational: bool = True,
+           threshold_mha: float | None = None, confidence: float = 0.95, require_converged: bool = False,
+           suite: str | None = None, method_name: str = "api", registry: Registry | None = None) -> Assessment:
+    """Judge an energy (Eh; ``stderr_ha`` in Eh, ``threshold_mha`` in mHa) or a :class:`MethodResult`
+    exactly as the gate does (see :func:`judge`);
+    ``registry`` is where the case's own threshold is looked up (default the built-in one)."""
+    result = energy if isinstance(energy, MethodResult) else MethodResult(
+        energy_ha=energy, stderr_ha=stderr_ha, converged=True if converged is None else converged, state=state)
+    fields = result_fields(problem, result, method_name, variational)
+    reg = registry or load_registry()
+    case = reg.cases.get(problem.problem.case)
+    suite_obj = reg.suites.get(suite) if suite else None
+    if case is not None:
+        threshold, source = threshold_for(case, suite_obj, threshold_mha)
+    else:
+        threshold, source = threshold_for_unknown(threshold_mha)
+    ref = problem.reference
+    settings = RunSettings(threshold_mha=threshold_mha, confidence=confidence, require_converged=require_converged)
+    judgement = judge_fields(fields, None if ref is None else ref.energy_ha, threshold, settings)
+    return Assessment(problem.problem.case, problem.problem.basis, fields.get("energy_ha"),
+                      None if ref is None else ref.method, None if ref is None else ref.energy_ha,
+                      threshold, source, fields, judgement)
+
+
+def threshold_for_unknown(threshold_mha: float | None) -> tuple[float, str]:
+    """Threshold of a case outside the built-in registry: the given one, else 1 kcal/mol."""
+    from benchsuite.scoring import THRESHOLD_SOURCE
+
+    return (threshold_mha, "threshold_mha argument") if threshold_mha is not None \
+        else (DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE)
+
+
+def judge(problem: PreparedProblem, energy: float | MethodResult, *, stderr_ha: float | None = None,
+          state: Any = None, converged: bool | None = None, variational: bool = True,
+          threshold_mha: float | None = None, confidence: float = 0.95, require_converged: bool = False,
+          suite: str | None = None) -> Judgement:
+    """The gate's verdict on an energy for this problem.
+
+    ``energy`` is the total energy in Eh (constant included) or a whole :class:`MethodResult`.
+    ``stderr_ha`` (Eh) makes it a stochastic judgement at ``confidence`` (a family of one:
+    the run-level Holm / Benjamini-Hochberg control needs the whole run, see :func:`run_methods`).
+    ``state`` (a :class:`~benchsuite.methods.base.SectorState`) and ``converged`` are passed as a
+    method would return them; ``variational`` turns on the below-exact check.  Threshold (mHa):
+    ``threshold_mha``, then the case's, then the ``suite``'s, then 1 kcal/mol = 1.5936 mHa.
+    Returns the :class:`~benchsuite.scoring.Judgement` (``verdict``, ``error_mha``,
+    ``threshold_mha``, ``message``).
+    """
+    return assess(problem, energy, stderr_ha=stderr_ha, state=state, converged=converged,
+                  variational=variational, threshold_mha=threshold_mha, confidence=confidence,
+                  require_converged=require_converged, suite=suite).judgement
+
+
+# -- runs ----------------------------------------------------------------------------
+
+def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str] | None = None,
+                basis: str | None = None, options: dict[str, dict[str, Any]] | None = None,
+                encoding: Encoding = Encoding(), threshold_mha: float | None = None, workers: int = 1,
+                timeout_s: float | None = None, db: str | Path | None = None,
+                cache_dir: str | Path | None = None, baseline: str | None = None, seed: int = 0):
+    """Run the gate (every method on every selected case) and return its results as a DataFrame.
+
+    ``methods`` are specs as on the command line (built-in name, entry-point name or
+    ``module:attr``); ``options`` maps a method spec to its option values; ``threshold_mha`` (mHa)
+    overrides every case's threshold; ``timeout_s`` is each task's time budget in seconds; ``workers``
+    worker processes run the grid.  The run is stored in
+    the results database ``db`` (default ``$BENCHSUITE_DB`` or ``.benchsuite/results.sqlite``);
+    ``baseline`` (a run id, prefix or ``latest``) adds a regression check.  The frame has one row
+    per task (columns as ``benchsuite export``: ``energy_ha``, ``error_mha``, ``verdict``, ...);
+    ``frame.attrs`` holds ``run_id``, ``passed`` and the decision's ``reasons``.
+    """
+    from benchsuite.chem.cache import default_cache_dir
+    from benchsuite.gate.execute import Execution, Outputs, execute_plan
+    from benchsuite.gate.plan import plan_run
+    from benchsuite.store.export import results_dataframe
+
+    from dataclasses import asdict
+
+    items = [f"{m}.{k}={v}" for m, opts in (options or {}).items() for k, v in opts.items()]
+    settings = RunSettings(basis=basis, threshold_mha=threshold_mha, timeout_s=timeout_s,
+                           encoding=asdict(encoding))
+    plan = plan_run(load_registry(), suite, None if suite else list(cases or []), list(methods), items,
+                    settings, seed, workers)
+    with open_store(db, create=True) as store:
+        base = store.resolve_run_id(baseline) if baseline else None
+        ex = Execution(workers=workers, cache_dir=str(cache_dir or default_cache_dir()), baseline_id=base)
+        decision, run, _ = execute_plan(store, plan, ex, Outputs(), command="benchsuite.api.run_methods")
+        frame = results_dataframe(store, run.run_id)
+    frame.attrs.update(run_id=run.run_id, passed=decision.passed, reasons=list(decision.reasons))
+    return frame
+
+
+def open_store(db: str | Path | None = None, create: bool = False):
+    """The results database (:class:`~benchsuite.store.db.ResultStore`, a context manager);
+    ``db`` default ``$BENCHSUITE_DB`` or ``.benchsuite/results.sqlite``.  Without ``create`` a
+    missing file is an InputError."""
+    from benchsuite.store.db import ResultStore
+
+    return ResultStore.open(db, create=create)
+
+
+def list_runs(db: str | Path | None = None, limit: int | None = None) -> list:
+    """Stored runs newest first, as :class:`~benchsuite.store.runs.RunSummary` (id, dates, suite,
+    methods, verdict counts, commit, source)."""
+    from benchsuite.store.runs import run_summaries
+
+    with open_store(db) as store:
+        return run_summaries(store, limit)
+
+
+@dataclass(frozen=True)
+class StoredRun:
+    """A stored run: its record, its final rows and its stored gate decision (None if unfinished)."""
+
+    record: Any
+    rows: list
+    decision: Any
+
+    def dataframe(self):
+        """The rows as a DataFrame (columns as ``benchsuite export``)."""
+        from benchsuite.store.export import rows_dataframe
+
+        return rows_dataframe(self.rows)
+
+
+def load_run(run_id: str = "latest", db: str | Path | None = None) -> StoredRun:
+    """A stored run by id, unique id prefix or ``latest`` (the latest complete run)."""
+    from benchsuite.gate.decision import GateDecision
+
+    with open_store(db) as store:
+        rid = store.resolve_run_id(run_id)
+        record, rows = store.get_run(rid), store.results(rid)
+    gate = (record.summary or {}).get("gate")
+    return StoredRun(record, rows, None if gate is None else GateDecision.from_dict(gate))
+
+
+def compare(base: str, new: str = "latest", db: str | Path | None = None, max_increase_mha: float | None = None,
+            allow_new: bool = False):
+    """Regressions from run ``base`` to run ``new`` (ids, prefixes or ``latest``), as
+    :class:`~benchsuite.store.baseline.Comparison`; ``max_increase_mha`` is the |error| growth that
+    counts as a regression (default 0.1 mHa)."""
+    from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_runs
+
+    limit = DEFAULT_MAX_INCREASE_MHA if max_increase_mha is None else max_increase_mha
+    if limit < 0:
+        raise InputError("must not be negative", field="max_increase_mha")
+    with open_store(db) as store:
+        b, n = store.resolve_run_id(base), store.resolve_run_id(new)
+        return compare_runs(store.get_run(b), store.results(b), store.get_run(n), store.results(n), limit,
+                            allow_new)
