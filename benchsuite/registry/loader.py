@@ -53,7 +53,13 @@ def read_toml(path: Path) -> dict[str, Any]:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"malformed TOML: {exc}", path) from None
     except (ValueError, RecursionError) as exc:  # e.g. an integer of more than 4300 digits
-        raise InputError(f"malformed TOML: {_clip(str(exc))}", path) from None
+        long_number = _LONG_DIGITS.search(text)
+        line = None if long_number is None else text.count("\n", 0, long_number.start()) + 1
+        raise InputError(f"malformed TOML{'' if line is None else f' (line {line})'}: {_clip(str(exc))}",
+                         path, None if line is None else field_at_line(text.splitlines(), line)) from None
+
+
+_LONG_DIGITS = re.compile(r"\d[\d_]{1000,}")
 
 
 def read_text(path: Path) -> str:
