@@ -421,14 +421,19 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
         _check_distances(symbols, coords, units, path, "atoms")
         return [Case(name=name, coords=_as_tuple(coords), **common)]
 
-    points = []
+    return _scan_points(name, coords, scan, common, path)
+
+
+def _scan_points(name: str, coords: np.ndarray, scan: Scan, common: dict, path: Path) -> list[Case]:
+    """One case per scan length, each point's coordinates finite, in bounds and well spaced."""
+    units, points = common["units"], []
     for length in scan.lengths:
         xyz = scan_geometry(coords, scan, length)
         where = f"scan.lengths ({format_length(length)})"
         if not np.all(np.isfinite(xyz)) or np.abs(xyz).max() > max_coordinate(units):
             raise InputError(f"the scan puts an atom outside |coordinate| <= {max_coordinate(units):g} "
                              f"{units}", path, where)
-        _check_distances(symbols, xyz, units, path, where)
+        _check_distances(common["symbols"], xyz, units, path, where)
         points.append(Case(name=f"{name}@{format_length(length)}", coords=_as_tuple(xyz), scan=scan,
                            scan_parent=name, scan_length=float(length), **common))
     return points

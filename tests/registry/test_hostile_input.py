@@ -213,7 +213,8 @@ def test_too_close_atoms_among_many_are_found(scratch):
     path = _write(scratch, _h2(GEOMETRY, f"atoms = [{', '.join(atoms)}]"))
     with pytest.raises(InputError) as err:
         parse_case_file(path, {"scratch-geometry"})
-    assert err.value.field == "atoms" and "atoms 999 (H) and 1999 (H) are 0.100 angstrom apart" in str(err.value)
+    assert err.value.field == "atoms"
+    assert "atoms 999 (H) and 1999 (H) are 0.100 angstrom apart" in str(err.value)
 
 
 @pytest.mark.parametrize("symbols, hill", [
