@@ -32,6 +32,8 @@ class BibEntry:
 
 def read_bib(path: Path) -> dict[str, BibEntry]:
     """Entries by key.  A key defined twice in one file is an input error."""
+    if not Path(path).is_file():
+        raise InputError("not a regular file", path)
     try:
         text = Path(path).read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:

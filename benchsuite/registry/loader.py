@@ -63,7 +63,10 @@ _LONG_DIGITS = re.compile(r"\d[\d_]{1000,}")
 
 
 def read_text(path: Path) -> str:
-    """The file as text: at most ``MAX_CASE_FILE_BYTES``, UTF-8, no NUL characters."""
+    """The file as text: a regular file (a FIFO would block the read), at most ``MAX_CASE_FILE_BYTES``,
+    UTF-8, no NUL characters."""
+    if Path(path).exists() and not Path(path).is_file():
+        raise InputError("not a regular file", path)
     try:
         with open(path, "rb") as fh:
             data = fh.read(MAX_CASE_FILE_BYTES + 1)

@@ -169,6 +169,15 @@ def test_oversized_file_is_refused_before_parsing(scratch, run_cli):
     assert code == 2 and path in err and "larger than" in err
 
 
+def test_a_fifo_among_the_case_files_is_refused_without_blocking(scratch, run_cli):
+    import os
+
+    _write(scratch, H2_CASE)
+    os.mkfifo(scratch.dir / "pipe.toml")
+    code, _, err = run_cli("cases", "--cases", str(scratch.dir))
+    assert code == 2 and "pipe.toml" in err and "not a regular file" in err
+
+
 def test_brackets_inside_strings_and_comments_do_not_count_as_nesting(scratch, run_cli):
     deep = "[" * 100
     text = (H2_CASE.replace('title = "Hydrogen molecule, scratch copy"', f'title = "{deep}"')
