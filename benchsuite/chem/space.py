@@ -9,7 +9,9 @@ Three kinds of space, all over the restricted SCF orbitals in energy order:
   below is frozen and the virtuals above are dropped.
 
 Every rung of the reference ladder and every method under test uses the same
-space; its label is carried into every output.
+space; its label is carried into every output.  :func:`check_room` (run by
+:func:`resolve_space`, so by :func:`prepare` before any SCF) refuses a space
+that leaves nothing to correlate.
 """
 
 from __future__ import annotations
