@@ -62,18 +62,11 @@ def _add_cases(sub) -> None:
 def _case_record(case, basis_label: str) -> dict:
     space = ("CAS({}e, {}o)".format(case.active_space.electrons, case.active_space.orbitals)
              if case.active_space else "frozen core" if case.frozen_core else "all-electron")
-    return {"name": case.name, "title": case.title, "formula": _formula(case.symbols),
+    return {"name": case.name, "title": case.title, "formula": case.formula,
             "charge": case.charge, "multiplicity": case.multiplicity, "n_electrons": case.n_electrons,
             "basis": basis_label, "bases": [b.label for b in case.bases], "space": space,
             "tags": list(case.tags), "geometry_source": case.geometry_source,
             "scan": case.scan_parent, "file": str(case.path)}
-
-
-def _formula(symbols) -> str:
-    counts: dict[str, int] = {}
-    for s in symbols:
-        counts[s] = counts.get(s, 0) + 1
-    return "".join(f"{s}{n if n > 1 else ''}" for s, n in counts.items())
 
 
 def _run_cases(args) -> int:

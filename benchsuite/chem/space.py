@@ -9,7 +9,9 @@ Three kinds of space, all over the restricted SCF orbitals in energy order:
   below is frozen and the virtuals above are dropped.
 
 Every rung of the reference ladder and every method under test uses the same
-space; its label is carried into every output.
+space; its label is carried into every output.  :func:`check_room` (run by
+:func:`resolve_space`, so by :func:`prepare` before any SCF) refuses a space
+that leaves nothing to correlate.
 """
 
 from __future__ import annotations
@@ -83,12 +85,50 @@ def resolve_space(case: Case, mol) -> OrbitalSpace:
         n_core = int(elements.chemcore(mol)) if case.frozen_core is True else int(case.frozen_core or 0)
         kind = "frozen-core" if n_core else "all-electron"
         n_orb = nmo - n_core
-    na, nb = n_alpha - n_core, n_beta - n_core
-    if nb < 0 or na > n_orb:
-        raise InputError(f"{na}+{nb} active electrons do not fit the space of {n_orb} orbitals",
-                         case.path, "active_space" if case.active_space else "frozen_core")
-    return OrbitalSpace(kind=kind, n_core=n_core, n_orbitals=n_orb, n_alpha=na, n_beta=nb,
-                        n_orbitals_total=nmo)
+    space = OrbitalSpace(kind=kind, n_core=n_core, n_orbitals=n_orb, n_alpha=n_alpha - n_core,
+                         n_beta=n_beta - n_core, n_orbitals_total=nmo)
+    label = mol.basis if isinstance(mol.basis, str) else ",".join(f"{k}:{v}" for k, v in mol.basis.items())
+    check_room(case, space, label)
+    return space
+
+
+def check_room(case: Case, space: OrbitalSpace, basis_label: str = "") -> None:
+    """The space must hold the electrons and leave something to correlate: at least one occupied
+    and one empty orbital for the alpha electrons (n_alpha >= n_beta, so beta has room too).
+
+    Without this a single-determinant space (H2 triplet or H2 with charge -2 in STO-3G, H2 with
+    ``frozen_core = 1``, an active space of (2e, 1o)) crashes PySCF's stability analysis, MP2 or CCSD
+    with a ZeroDivisionError or AssertionError.  Raises :class:`InputError` naming the field to change.
+    """
+    nmo, n_alpha_total = space.n_orbitals_total, space.n_core + space.n_alpha
+    in_basis = f"basis {basis_label!r}" if basis_label else "the basis"
+    if n_alpha_total > nmo:
+        raise InputError(f"{case.n_electrons} electrons ({n_alpha_total} alpha) need {n_alpha_total} spatial "
+                         f"orbitals; {in_basis} has {nmo} (charge {case.charge}, multiplicity "
+                         f"{case.multiplicity})", case.path, _culprit(case, 0, nmo + 1))
+    space_field = {"active-space": "active_space", "frozen-core": "frozen_core"}.get(space.kind)
+    if space.n_beta < 0:
+        raise InputError(f"{space.n_core} frozen orbitals need {2 * space.n_core} paired electrons; the "
+                         f"molecule has {space.n_core + space.n_beta} beta electrons", case.path, space_field)
+    if space.n_alpha == 0:
+        raise InputError(f"the space {space.label} has no occupied orbital: nothing to correlate",
+                         case.path, space_field)
+    if space.n_alpha >= space.n_orbitals:
+        field = ("active_space.orbitals" if space.kind == "active-space"
+                 else _culprit(case, space.n_core, space.n_orbitals))
+        raise InputError(f"the space {space.label} has no empty orbital for the {space.n_alpha} alpha "
+                         f"electrons in {in_basis}: no excitation to correlate (use a larger basis or "
+                         "space)", case.path, field)
+
+
+def _culprit(case: Case, n_core: int, limit: int) -> str:
+    """The field to change so that the alpha electrons (less ``n_core``) number fewer than ``limit``:
+    the multiplicity if the lowest spin would do, the charge if the neutral molecule would, else the basis."""
+    lowest_alpha = (case.n_electrons + 1) // 2 - n_core
+    if case.spin and lowest_alpha < limit:
+        return "multiplicity"
+    neutral_alpha = (case.n_electrons + case.charge + 1) // 2 - n_core
+    return "charge" if case.charge < 0 and neutral_alpha < limit else "basis"
 
 
 def cache_fields(case: Case, basis: Basis, space: OrbitalSpace, scf_kind: str) -> dict:

@@ -32,7 +32,14 @@ class BibEntry:
 
 def read_bib(path: Path) -> dict[str, BibEntry]:
     """Entries by key.  A key defined twice in one file is an input error."""
-    text = Path(path).read_text(encoding="utf-8")
+    if not Path(path).is_file():
+        raise InputError("not a regular file", path)
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"byte {exc.start}: not valid UTF-8; sources.bib must be UTF-8", path) from None
+    except OSError as exc:
+        raise InputError(f"cannot read file: {exc.strerror}", path) from None
     starts = list(_ENTRY_START.finditer(text))
     entries: dict[str, BibEntry] = {}
     for n, m in enumerate(starts):
