@@ -72,6 +72,8 @@ class ResultRow:
     ``1000 * (energy_ha - reference_energy_ha)``.  ``secondary`` holds the
     other reference rungs and published values with the method's error
     against each; ``scf`` is ``{"method", "converged", "stable", "flags"}``.
+    ``captured_output`` is what the method's worker printed (stdout and
+    stderr), at most :data:`MAX_CAPTURED_CHARS` characters as stored.
     """
 
     run_id: str
@@ -107,6 +109,7 @@ class ResultRow:
     scan_length: float | None = None
     scf: dict = field(default_factory=dict)
     finished_at: str = field(default_factory=utc_now)
+    captured_output: str = ""
 
     def to_json_dict(self) -> dict:
         """Plain JSON-safe dict (non-finite floats become None)."""
@@ -209,8 +212,13 @@ RESULT_COLUMNS = _columns("""
     reference_energy_ha:real error_mha:real threshold_mha:real! converged:bool iterations:int
     seconds:real! message:text! n_qubits:int n_terms:int one_norm_ha:real qwc_groups:int
     resources:json! metadata:json! parameters:json secondary:json! space:text! tags:json!
-    scan_parent:text scan_length:real scf:json! finished_at:text!
+    scan_parent:text scan_length:real scf:json! finished_at:text! captured_output:text!
 """)
+
+
+#: Bounds of what a row may hold as stored (SQLite INTEGER is 64-bit signed).
+MAX_CAPTURED_CHARS = 20 * 1024
+INT64_MAX = 2 ** 63 - 1
 
 
 def to_db_values(record, columns: tuple[Column, ...]) -> tuple:
@@ -221,3 +229,55 @@ def to_db_values(record, columns: tuple[Column, ...]) -> tuple:
 def from_db_values(cls, columns: tuple[Column, ...], values) -> object:
     """Rebuild a record of ``cls`` from a row whose values are in column order."""
     return cls(**{col.name: col.from_db(v) for col, v in zip(columns, values)})
+
+
+# -- rows that cannot be stored as they are ------------------------------------------
+
+def _storable(col: Column, value):
+    """``value`` as bound to SQLite, or a ValueError saying why it cannot be stored in ``col``."""
+    if value is None:
+        return None
+    if col.kind == "int" and not (isinstance(value, int) or hasattr(value, "__index__")):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not an integer")
+    if col.kind == "real" and (isinstance(value, (str, bytes)) or not hasattr(value, "__float__")):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a number")
+    if col.kind == "bool" and not isinstance(value, (bool, int)) and type(value).__name__ not in ("bool_", "bool"):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a boolean")
+    try:
+        stored = col.to_db(value)
+    except Exception as exc:            # TypeError, OverflowError, RecursionError, a __str__ that raises ...
+        raise ValueError(f"{type(exc).__name__}: {str(exc)[:200]}") from None
+    if col.kind == "int" and abs(stored) > INT64_MAX:
+        raise ValueError(f"{stored:.3e} is outside the 64-bit integer range")
+    return stored
+
+
+def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
+    """The row's values as bound to SQLite, and a note for every value that could not be stored.
+
+    A value of the wrong type or out of range (``iterations=10**20``, a set
+    or an object in ``resources``, text in a number column) becomes NULL
+    (``{}`` for a required JSON column) and is named in the notes; the caller
+    stores such a row as ``invalid``.  ``captured_output`` is cut to
+    :data:`MAX_CAPTURED_CHARS`.
+    """
+    values, notes = [], []
+    for col in RESULT_COLUMNS:
+        value = getattr(row, col.name)
+        if col.name == "captured_output":
+            value = bound_text(value, MAX_CAPTURED_CHARS)
+        try:
+            values.append(_storable(col, value))
+        except ValueError as exc:
+            notes.append(f"{col.name}: {exc}")
+            values.append("{}" if col.kind == "json" and col.required else None)
+    return tuple(values), notes
+
+
+def bound_text(text, limit: int) -> str:
+    """``text`` as a string of at most ``limit`` characters (a cut is marked at the end)."""
+    text = text if isinstance(text, str) else repr(text)
+    if len(text) <= limit:
+        return text
+    note = f"\n[... {len(text) - limit + 60:,} more characters not kept]"
+    return text[:limit - 60] + note
