@@ -233,10 +233,19 @@ def from_db_values(cls, columns: tuple[Column, ...], values) -> object:
 
 # -- rows that cannot be stored as they are ------------------------------------------
 
+#: JSON columns of ResultRow that must hold an object / a list (readers index into them).
+_OBJECT_FIELDS = frozenset({"options", "resources", "metadata", "secondary", "scf"})
+_LIST_FIELDS = frozenset({"tags", "parameters"})
+
+
 def _storable(col: Column, value):
     """``value`` as bound to SQLite, or a ValueError saying why it cannot be stored in ``col``."""
     if value is None:
         return None
+    if col.name in _OBJECT_FIELDS and not isinstance(value, dict):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not an object (dict)")
+    if col.name in _LIST_FIELDS and not isinstance(value, (list, tuple)):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a list")
     if col.kind == "int" and not (isinstance(value, int) or hasattr(value, "__index__")):
         raise ValueError(f"{type(value).__name__} {value!r:.60} is not an integer")
     if col.kind == "real" and (isinstance(value, (str, bytes)) or not hasattr(value, "__float__")):
@@ -252,13 +261,23 @@ def _storable(col: Column, value):
     return stored
 
 
+def _placeholder(col: Column):
+    """What an unstorable value becomes: NULL, or for a NOT NULL column an empty value of its type."""
+    if not col.required:
+        return None
+    if col.kind == "json":
+        return "[]" if col.name in _LIST_FIELDS else "{}"
+    return {"real": 0.0, "int": 0, "bool": 0}.get(col.kind, "")
+
+
 def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
     """The row's values as bound to SQLite, and a note for every value that could not be stored.
 
     A value of the wrong type or out of range (``iterations=10**20``, a set
-    or an object in ``resources``, text in a number column) becomes NULL
-    (``{}`` for a required JSON column) and is named in the notes; the caller
-    stores such a row as ``invalid``.  ``captured_output`` is cut to
+    or an object in ``resources``, text in a number column) becomes NULL (an
+    empty value of the column's type where NULL is not allowed: 0.0, "",
+    ``{}``, ``[]``) and is named in the notes; the caller stores such a row as
+    ``invalid``.  ``captured_output`` is cut to
     :data:`MAX_CAPTURED_CHARS`.
     """
     values, notes = [], []
@@ -270,7 +289,7 @@ def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
             values.append(_storable(col, value))
         except ValueError as exc:
             notes.append(f"{col.name}: {exc}")
-            values.append("{}" if col.kind == "json" and col.required else None)
+            values.append(_placeholder(col))
     return tuple(values), notes
 
 

@@ -30,3 +30,19 @@ class GatedSolver:
         while not (gate / "go").exists() and time.monotonic() < deadline:
             time.sleep(0.05)
         return MethodResult(energy_ha=sector_eigen(problem.hamiltonian).ground_ha, iterations=1)
+
+
+class ChattySolver(GatedSolver):
+    """Exact energy, after printing a marked line (with HTML in it) to stdout and to stderr."""
+
+    name = "chatty-exact"
+    description = "exact sector energy, printing on both streams"
+
+    def run(self, problem, options):
+        import sys
+
+        from benchsuite.qubit.sector import sector_eigen
+
+        print("CHATTY-STDOUT <b>bold</b> & more", flush=True)
+        print("CHATTY-STDERR warning: tolerance", file=sys.stderr, flush=True)
+        return MethodResult(energy_ha=sector_eigen(problem.hamiltonian).ground_ha, iterations=1)
