@@ -17,6 +17,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import re
 from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
 
@@ -173,12 +174,17 @@ class Column:
             return dumps(value)
         if self.kind == "real":
             value = float(value)
+            if value == 0.0:
+                return 0.0                # SQLite reads -0.0 back as 0.0; store what it will give back
             return value if math.isfinite(value) else None
         if self.kind == "bool":
             return int(bool(value))
         if self.kind == "int":
             return int(value)
-        return str(value)
+        text = str(value)
+        if not text.isascii():            # lone surrogates cannot be stored as UTF-8: make them U+FFFD
+            text = _SURROGATE.sub("\ufffd", text)
+        return text
 
     def from_db(self, value):
         """The stored value as the dataclass holds it."""
@@ -189,6 +195,9 @@ class Column:
         if self.kind == "bool":
             return bool(value)
         return value
+
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _columns(spec: str) -> tuple[Column, ...]:
@@ -294,8 +303,8 @@ def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
 
 
 def bound_text(text, limit: int) -> str:
-    """``text`` as a string of at most ``limit`` characters (a cut is marked at the end)."""
-    text = text if isinstance(text, str) else repr(text)
+    """``text`` as a string of at most ``limit`` characters (a cut is marked at the end); None is ""."""
+    text = "" if text is None else text if isinstance(text, str) else repr(text)
     if len(text) <= limit:
         return text
     note = f"\n[... {len(text) - limit + 60:,} more characters not kept]"

@@ -129,3 +129,14 @@ def test_a_run_stores_what_the_worker_printed_and_prints_none_of_it(tmp_path):
         (row,) = store.results(store.resolve_run_id("latest"))
     assert "CHATTY-STDOUT <b>bold</b> & more" in row.captured_output
     assert "CHATTY-STDERR warning: tolerance" in row.captured_output
+
+
+def test_values_sqlite_would_change_are_stored_as_read_back(tmp_path):
+    """-0.0 (SQLite returns 0.0), lone surrogates and NUL in text: stored, read back, chain intact."""
+    with ResultStore.open(tmp_path / "r.sqlite") as store:
+        store.begin_run(sample_run(RUN))
+        store.add_result(dataclasses.replace(sample_row(RUN, 0), error_mha=-0.0, message="bad \udc80 byte\x00 nul",
+                                             captured_output="\ud800 out"))
+        (back,) = store.results(RUN)
+    assert back.error_mha == 0.0 and back.status == "ok"
+    assert back.message == "bad \ufffd byte\x00 nul" and back.captured_output == "\ufffd out"
