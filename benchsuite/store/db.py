@@ -640,6 +640,12 @@ class ResultStore:
         check_rows(run_id, RESULT_NAMES, rows, found[1], found[2], self.path)
         return sorted((from_db_values(ResultRow, RESULT_COLUMNS, r[3]) for r in rows), key=lambda r: r.task_key)
 
+    def chain(self, run_id: str) -> dict:
+        """``{"head_sha256", "rows"}`` of the run's verified hash chain (publish the head to anchor it)."""
+        rows = self.results(run_id)
+        found = self._retry(lambda: _run_row(self._conn, run_id))
+        return {"head_sha256": found[1], "rows": len(rows)}
+
     @_guarded
     def stored_task_keys(self, run_id: str) -> set[str]:
         return {r[0] for r in self._conn.execute("SELECT task_key FROM results WHERE run_id = ?", (run_id,))}

@@ -14,6 +14,7 @@ import pytest
 
 from benchsuite.store import ResultStore
 from benchsuite.store.chain import TamperedRunError
+from benchsuite.store.export import render_export
 from tests.store import sample_key, sample_row, sample_run
 
 BASE, NEW = "r20261201-223015-base", "r20261202-080000-new0"
@@ -132,3 +133,24 @@ def test_commands_refuse_an_edited_verdict(db, run_cli, tmp_path, argv):
     assert code == 2, (stdout, stderr)
     assert f"run {BASE}, task {FAILED}" in stderr and "edited" in stderr and "Traceback" not in stderr
     assert stdout == "" and not out.exists()
+
+
+def test_chain_head_follows_the_documented_formula(db):
+    """Recompute the head from the raw rows with hashlib alone, as chain.py's docstring defines it."""
+    import hashlib
+    import json
+
+    from benchsuite.store.records import RESULT_COLUMNS
+
+    names = [c.name for c in RESULT_COLUMNS]
+    with sqlite3.connect(db) as conn:
+        rows = conn.execute(f"SELECT {', '.join(c.sql for c in RESULT_COLUMNS)} FROM results WHERE run_id = ? "
+                            "ORDER BY seq", (BASE,)).fetchall()
+    digest = hashlib.sha256(f"benchsuite-chain-v1|{BASE}".encode()).hexdigest()
+    for values in rows:
+        body = json.dumps([[n, v] for n, v in zip(names, values)], separators=(",", ":"), ensure_ascii=False)
+        digest = hashlib.sha256(f"{digest}|{body}".encode()).hexdigest()
+    with ResultStore.open(db) as store:
+        assert store.chain(BASE) == {"head_sha256": digest, "rows": N}
+        exported = json.loads(render_export(store, BASE, "json"))
+    assert exported["chain"] == {"head_sha256": digest, "rows": N}
