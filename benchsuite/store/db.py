@@ -96,8 +96,8 @@ from benchsuite.errors import InputError
 from benchsuite.scoring import STATUSES, VERDICTS
 from benchsuite.store import unsaved
 from benchsuite.store.chain import TamperedRunError, check_record, check_rows, genesis, record_hash, row_hash
-from benchsuite.store.records import (MAX_CAPTURED_CHARS, RESULT_COLUMNS, RUN_COLUMNS, ResultRow, RunRecord,
-                                      bound_text, dumps, from_db_values, storable_values, to_db_values, utc_now)
+from benchsuite.store.records import (RESULT_COLUMNS, RUN_COLUMNS, ResultRow, RunRecord, bound_text, dumps,
+                                      from_db_values, storable_values, to_db_values, utc_now)
 
 __all__ = ["DEFAULT_BUSY_WAIT_S", "MIGRATIONS", "SCHEMA_VERSION", "ResultStore", "StoreBusyError",
            "TamperedRunError", "default_db_path", "migrate"]
@@ -377,7 +377,7 @@ class ResultStore:
 
     @classmethod
     def open(cls, path=None, create: bool = True, upto: int | None = None, busy_wait_s: float | None = None,
-             notice=None) -> "ResultStore":
+             notice=None) -> ResultStore:
         """Open (and with ``create``, make, parent folders included) the database at ``path``.
 
         ``path=None`` means :func:`default_db_path`.  Without ``create`` a
@@ -414,7 +414,7 @@ class ResultStore:
     def close(self) -> None:
         self._conn.close()
 
-    def __enter__(self) -> "ResultStore":
+    def __enter__(self) -> ResultStore:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -80,7 +80,7 @@ def take(path: Path):
     if not pending(path):
         yield [], []
         return
-    with _locked(path) as fd:
+    with _locked(path):
         with open(path, "rb") as fh:
             lines = fh.read().splitlines()
         entries = []
