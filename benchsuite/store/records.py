@@ -247,10 +247,18 @@ _OBJECT_FIELDS = frozenset({"options", "resources", "metadata", "secondary", "sc
 _LIST_FIELDS = frozenset({"tags", "parameters"})
 
 
+#: NOT NULL columns a method's result feeds: None there is empty text or JSON, or an unstorable number.
+_FED_BY_METHOD = frozenset({"seconds", "message", "captured_output", "resources", "metadata"})
+
+
 def _storable(col: Column, value):
     """``value`` as bound to SQLite, or a ValueError saying why it cannot be stored in ``col``."""
     if value is None:
-        return None
+        if not (col.required and col.name in _FED_BY_METHOD):
+            return None                    # NULL; in another NOT NULL column SQLite refuses it (a bug upstream)
+        if col.kind in ("text", "json"):
+            return _placeholder(col)
+        raise ValueError("missing (None)")
     if col.name in _OBJECT_FIELDS and not isinstance(value, dict):
         raise ValueError(f"{type(value).__name__} {value!r:.60} is not an object (dict)")
     if col.name in _LIST_FIELDS and not isinstance(value, (list, tuple)):
