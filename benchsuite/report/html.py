@@ -342,7 +342,18 @@ def _task_row(r, registry) -> TaskRow:
                    threshold_mha=r.threshold_mha, verdict=r.verdict, status=r.status, seconds=r.seconds,
                    tags=list(r.tags), message=r.message.strip(), scan_parent=r.scan_parent,
                    scan_length=r.scan_length, sources=row_citations(r, registry), converged=r.converged,
-                   captured_output=r.captured_output or "")
+                   captured_output=_output_tail(r.captured_output or ""))
+
+
+#: Characters of a task's worker output the report shows (its end); the JSON export has all that is stored.
+REPORT_OUTPUT_CHARS = 4000
+
+
+def _output_tail(text: str) -> str:
+    if len(text) <= REPORT_OUTPUT_CHARS:
+        return text
+    return (f"[... {len(text) - REPORT_OUTPUT_CHARS:,} earlier characters: see `benchsuite export --format json`]\n"
+            + text[-REPORT_OUTPUT_CHARS:])
 
 
 def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> str:

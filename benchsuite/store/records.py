@@ -294,14 +294,14 @@ def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
     or an object in ``resources``, text in a number column) becomes NULL (an
     empty value of the column's type where NULL is not allowed: 0.0, "",
     ``{}``, ``[]``) and is named in the notes; the caller stores such a row as
-    ``invalid``.  ``captured_output`` is cut to
-    :data:`MAX_CAPTURED_CHARS`.
+    ``invalid``.  ``captured_output`` is cut to its last
+    :data:`MAX_CAPTURED_CHARS` characters.
     """
     values, notes = [], []
     for col in RESULT_COLUMNS:
         value = getattr(row, col.name)
         if col.name == "captured_output":
-            value = bound_text(value, MAX_CAPTURED_CHARS)
+            value = bound_text(value, MAX_CAPTURED_CHARS, keep_end=True)
         try:
             values.append(_storable(col, value))
         except ValueError as exc:
@@ -310,10 +310,15 @@ def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
     return tuple(values), notes
 
 
-def bound_text(text, limit: int) -> str:
-    """``text`` as a string of at most ``limit`` characters (a cut is marked at the end); None is ""."""
+def bound_text(text, limit: int, keep_end: bool = False) -> str:
+    """``text`` as a string of at most ``limit`` characters, the cut marked; None is "".
+
+    Keeps the start, or with ``keep_end`` the end (for output, whose last lines matter most).
+    """
     text = "" if text is None else text if isinstance(text, str) else repr(text)
     if len(text) <= limit:
         return text
-    note = f"\n[... {len(text) - limit + 60:,} more characters not kept]"
-    return text[:limit - 60] + note
+    cut = len(text) - limit + 60
+    if keep_end:
+        return f"[... {cut:,} earlier characters not kept]\n" + text[cut:]
+    return text[:limit - 60] + f"\n[... {cut:,} more characters not kept]"

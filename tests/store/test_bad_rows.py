@@ -79,7 +79,8 @@ def hostile_db(tmp_path):
         store.begin_run(sample_run(RUN))
         for i in range(3):
             row = dataclasses.replace(sample_row(RUN, i), resources=dict(HOSTILE_RESOURCES),
-                                      captured_output=f"task {i} says <img src=x onerror=alert(1)>\n" + "x" * 10**6)
+                                      captured_output=f"task {i} says <img src=x onerror=alert(1)>\n" + "x" * 10**6
+                                      + "\n<img src=y onerror=alert(2)> the end")
             store.add_result(row)
         store.finish_run(RUN)
     return db
@@ -88,7 +89,8 @@ def hostile_db(tmp_path):
 def test_captured_output_is_bounded_and_exported(hostile_db, run_cli):
     with ResultStore.open(hostile_db) as store:
         rows = store.results(RUN)
-    assert all(len(r.captured_output) <= MAX_CAPTURED_CHARS and "not kept]" in r.captured_output for r in rows)
+    assert all(len(r.captured_output) <= MAX_CAPTURED_CHARS and "earlier characters not kept]" in r.captured_output
+               and r.captured_output.endswith("the end") for r in rows)
     code, out, err = run_cli("export", RUN, "--format", "json", "--db", str(hostile_db))
     assert code == 0, err
     exported = json.loads(out)["results"]
@@ -101,7 +103,10 @@ def test_report_and_tables_survive_hostile_resources(hostile_db, run_cli, tmp_pa
     assert code == 0, stderr
     html = out.read_text()
     assert "<script>alert" not in html and "&lt;script&gt;alert" in html
-    assert "<img src=x" not in html and "task 0 says &lt;img src=x onerror=alert(1)&gt;" in html
+    assert "<img src=" not in html and "task 0 says" not in html          # the report shows the end of it
+    assert "&lt;img src=y onerror=alert(2)&gt; the end" in html
+    assert "earlier characters: see `benchsuite export --format json`" in html and "x" * 3000 in html
+    assert len(html) < 200_000
     assert "says" not in stdout and "says" not in stderr                  # never on the command's output
     expected = {"latex": r"\textbackslash{}input\{/etc/passwd\}", "markdown": r"\<script\>",
                 "csv": str(10**19)}
