@@ -515,8 +515,10 @@ class ResultStore:
         """Set a stored run back to ``running`` (for ``--resume``) and return it.
 
         Rows kept in the side file (by any process) are stored first, so the
-        resumed run does not compute them again.
+        resumed run does not compute them again.  An edited run is refused
+        (:class:`TamperedRunError`) before anything is computed for it.
         """
+        self.results(run_id)
         self._update_run(run_id, "UPDATE runs SET status = 'running', finished_at = NULL WHERE run_id = ?", ())
         return self.get_run(run_id)
 

@@ -154,3 +154,13 @@ def test_chain_head_follows_the_documented_formula(db):
         assert store.chain(BASE) == {"head_sha256": digest, "rows": N}
         exported = json.loads(render_export(store, BASE, "json"))
     assert exported["chain"] == {"head_sha256": digest, "rows": N}
+
+
+def test_resume_refuses_an_edited_run_before_computing(db, run_cli):
+    _tampered(db)
+    with ResultStore.open(db) as store, pytest.raises(TamperedRunError, match=FAILED):
+        store.resume_run(BASE)
+    code, stdout, stderr = run_cli("run", "--resume", BASE, "--db", str(db))
+    assert code == 2 and f"run {BASE}, task {FAILED}" in stderr
+    with ResultStore.open(db) as store:
+        assert store.list_runs()[0].status == "complete"            # left as it was
