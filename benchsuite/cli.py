@@ -432,6 +432,8 @@ def _run_run(args) -> int:
     plan = plan_run(registry, workers=args.workers, **plan_args)
     store = store or ResultStore.open(_db_path(args))
     baseline_id = store.resolve_run_id(args.baseline, exclude=resumed and resumed.run_id) if args.baseline else None
+    if baseline_id is not None:
+        store.results(baseline_id)          # an edited baseline is refused before anything is computed
     ex = Execution(workers=args.workers or os.cpu_count() or 1, scheduler=args.scheduler,
                    cache_dir=str(args.cache_dir or default_cache_dir()), baseline_id=baseline_id,
                    max_increase_mha=args.max_increase_mha, allow_new=args.allow_new)

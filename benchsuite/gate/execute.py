@@ -91,6 +91,7 @@ def run_tasks(store, run_id: str, plan: RunPlan, tasks, ex: Execution, progress=
 
     def on_result(task, fields, ladder):
         row = task_row(run_id, task, fields, ladder, plan)
+        row.captured_output = fields.get("captured_output") or ""      # the worker's output, for the record
         store.add_result(row)
         if progress is not None:
             progress.row_done(row)

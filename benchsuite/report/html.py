@@ -33,7 +33,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from benchsuite.report.gate import is_failing
-from benchsuite.report.tables import format_number, results_hash, row_citations
+from benchsuite.report.tables import format_number, is_number, results_hash, row_citations
 from benchsuite.scoring import VERDICTS, CurveStatistics, MethodStatistics, curve_statistics, method_statistics
 
 TEMPLATE_DIR = Path(__file__).with_name("templates")
@@ -78,6 +78,7 @@ class TaskRow:
     scan_length: float | None = None
     sources: list[str] = field(default_factory=list)
     converged: bool | None = None
+    captured_output: str = ""       # what the method's worker printed (bounded by the store), shown escaped
 
 
 @dataclass
@@ -340,7 +341,19 @@ def _task_row(r, registry) -> TaskRow:
                    error_mha=r.error_mha, sigma_mha=None if r.stderr_ha is None else 1000.0 * r.stderr_ha,
                    threshold_mha=r.threshold_mha, verdict=r.verdict, status=r.status, seconds=r.seconds,
                    tags=list(r.tags), message=r.message.strip(), scan_parent=r.scan_parent,
-                   scan_length=r.scan_length, sources=row_citations(r, registry), converged=r.converged)
+                   scan_length=r.scan_length, sources=row_citations(r, registry), converged=r.converged,
+                   captured_output=_output_tail(r.captured_output or ""))
+
+
+#: Characters of a task's worker output the report shows (its end); the JSON export has all that is stored.
+REPORT_OUTPUT_CHARS = 4000
+
+
+def _output_tail(text: str) -> str:
+    if len(text) <= REPORT_OUTPUT_CHARS:
+        return text
+    return (f"[... {len(text) - REPORT_OUTPUT_CHARS:,} earlier characters: see `benchsuite export --format json`]\n"
+            + text[-REPORT_OUTPUT_CHARS:])
 
 
 def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> str:
@@ -514,15 +527,19 @@ def _environment():
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(TEMPLATE_DIR)), autoescape=True,
                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
     env.filters["num"] = _num
-    env.filters["dataval"] = lambda x: "" if x is None else repr(float(x)) if isinstance(x, float) else str(x)
+    env.filters["dataval"] = lambda x: "" if x is None else repr(x) if isinstance(x, float) else str(x)
     env.globals["VERDICT_LABELS"] = VERDICT_LABELS
     env.globals["is_failing"] = is_failing
     return env
 
 
 def _num(x, spec: str = ".6f", missing: str = "—") -> str:
+    """A number for a cell (a real minus sign); anything that is not a number prints as its text
+    (escaped by the template), so a string in a number field never breaks the report."""
     if x is None or (isinstance(x, float) and not math.isfinite(x)):
         return missing
+    if not is_number(x):
+        return str(x)
     return format_number(x, spec).replace("-", "−")
 
 

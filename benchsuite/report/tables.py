@@ -2,7 +2,7 @@
 
 Every table carries what a reader needs to cite and reproduce it:
 
-* units in the column headers (energies in Eh, errors and sigma in mEh, times in s);
+* units in the column headers (energies in Eh, errors and sigma in mHa, times in s);
 * the pass threshold and its source;
 * the reference rung of each row (``fci`` or ``casci``);
 * citation keys from ``sources.bib`` for each row: the case's geometry source
@@ -27,6 +27,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
+import math
 import re
 from dataclasses import dataclass
 from typing import Callable
@@ -86,21 +87,64 @@ _LATEX_SPECIAL = {
 _LATEX_TABLE = str.maketrans(_LATEX_SPECIAL)
 _CITE_KEY = re.compile(r"[A-Za-z0-9_:.+/\-]+")
 _MARKDOWN_SPECIAL = str.maketrans({c: "\\" + c for c in "\\`*_[]<>|&~$"})
+_CONTROL = re.compile(r"[\x00-\x1f\x7f\u2028\u2029]")
+_FORMULA_START = frozenset("=+-@\t\r")
+
+
+def _one_line(text) -> str:
+    """``text`` as one line: every control character (newline, tab, NUL, ...) becomes a space."""
+    return _CONTROL.sub(" ", str(text))
 
 
 def latex_escape(text) -> str:
-    """``text`` with every LaTeX special character made literal; newlines become spaces."""
-    return " ".join(str(text).split("\n")).translate(_LATEX_TABLE)
+    """``text`` with every LaTeX special character made literal; control characters become spaces."""
+    return _one_line(text).translate(_LATEX_TABLE)
 
 
 def markdown_escape(text) -> str:
     """``text`` safe inside one pipe-table cell (backslash escapes, one line)."""
-    return " ".join(str(text).split("\n")).translate(_MARKDOWN_SPECIAL)
+    return _one_line(text).translate(_MARKDOWN_SPECIAL)
+
+
+def csv_cell(value):
+    """A CSV value: numbers raw (floats at full precision), None empty, text defused.
+
+    Text starting with ``= + - @`` (or a tab or carriage return) is read as a
+    formula by spreadsheets; such a cell gets a leading apostrophe (common
+    practice against CSV injection).  Quoting is the csv module's.
+    """
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return repr(value)
+    if isinstance(value, int) and not isinstance(value, bool):
+        return value
+    text = str(value)
+    return "'" + text if text[:1] in _FORMULA_START else text
+
+
+def is_number(value) -> bool:
+    """A finite int or float (bools, strings, containers and NaN/inf are not numbers here)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return False
+    return isinstance(value, int) or math.isfinite(value)
 
 
 def format_number(x, spec: str) -> str:
-    """``format(x, spec)``, except that a value printing as zero carries no sign ("0.000", not "-0.000")."""
-    text = format(x, spec)
+    """``format(x, spec)``, defensively.
+
+    A value printing as zero carries no sign ("0.000", not "-0.000"); an
+    integer spec (``d``) given a float prints the float with ``g``; a value the
+    spec cannot format prints as ``str``.  Callers escape the result for
+    their format.
+    """
+    if spec.endswith("d") and isinstance(x, float):
+        x = int(x) if x.is_integer() and abs(x) < 2 ** 63 else x
+        spec = spec if isinstance(x, int) else spec[:-1] + "g"
+    try:
+        text = format(x, spec)
+    except (TypeError, ValueError):
+        return str(x)
     if isinstance(x, float) and text.strip("+-0.") == "":
         text = text.lstrip("+-")
     return text
@@ -140,13 +184,13 @@ COLUMNS: dict[str, TableColumn] = {c.name: c for c in (
     TableColumn("terms", "Pauli terms", "Pauli terms", "r", lambda r, c, x: r.n_terms, "d", True),
     TableColumn("energy", "E_method / Eh", r"$E_\mathrm{method}$ / $E_\mathrm{h}$", "r",
                 lambda r, c, x: r.energy_ha, ".6f", True),
-    TableColumn("sigma", "sigma / mEh", r"$\sigma$ / m$E_\mathrm{h}$", "r",
+    TableColumn("sigma", "sigma / mHa", r"$\sigma$ / mHa", "r",
                 lambda r, c, x: _mha(r.stderr_ha), ".3f", True),
     TableColumn("reference", "E_reference / Eh", r"$E_\mathrm{ref}$ / $E_\mathrm{h}$", "r",
                 lambda r, c, x: r.reference_energy_ha, ".6f", True),
     TableColumn("rung", "reference rung", "Reference", "l", lambda r, c, x: r.reference_method),
-    TableColumn("error", "error / mEh", r"Error / m$E_\mathrm{h}$", "r", lambda r, c, x: r.error_mha, "+.3f", True),
-    TableColumn("threshold", "threshold / mEh", r"Threshold / m$E_\mathrm{h}$", "r",
+    TableColumn("error", "error / mHa", "Error / mHa", "r", lambda r, c, x: r.error_mha, "+.3f", True),
+    TableColumn("threshold", "threshold / mHa", "Threshold / mHa", "r",
                 lambda r, c, x: r.threshold_mha, ".4f", True),
     TableColumn("verdict", "verdict", "Verdict", "l", lambda r, c, x: r.verdict),
     TableColumn("seconds", "time / s", "Time / s", "r", lambda r, c, x: r.seconds, ".2f", True),
@@ -212,9 +256,10 @@ def build_table(run, rows, columns: list[TableColumn], registry=None) -> Table:
 
 
 def _text(col: TableColumn, value) -> str:
-    if value is None or value == "":
+    """A value as printed text (not yet escaped): numbers through ``col.fmt``, missing ones ``--``."""
+    if value is None or value == "" or (isinstance(value, float) and not math.isfinite(value)):
         return "--" if col.number else ""
-    if col.fmt and isinstance(value, (int, float)) and not isinstance(value, bool):
+    if col.fmt and is_number(value):
         return format_number(value, col.fmt)
     return str(value)
 
@@ -222,7 +267,7 @@ def _text(col: TableColumn, value) -> str:
 def _caption(t: Table, escape: Callable[[str], str], le: str) -> str:
     per_row = " (a case or suite threshold differs on some rows: see their threshold)" if t.thresholds_differ else ""
     return (escape("Energies against the FCI/CASCI reference in the same orbital space; pass if |error| ") + le
-            + escape(f" {t.threshold_mha:.4f} mEh ({t.threshold_source}){per_row}. "
+            + escape(f" {t.threshold_mha:.4f} mHa ({t.threshold_source}){per_row}. "
                      f"benchsuite run {t.run_id}, results hash {t.results_hash}."))
 
 
@@ -232,7 +277,7 @@ def render_latex(t: Table) -> str:
         if col.name == "sources":
             return ", ".join(rf"\cite{{{k}}}" if _CITE_KEY.fullmatch(k) else latex_escape(k) for k in cites)
         text = _text(col, value)
-        if col.number and text not in ("", "--"):
+        if col.number and is_number(value):       # only a real number enters math mode
             return f"${text}$"
         return latex_escape(text)
 
@@ -273,9 +318,9 @@ def render_csv(t: Table) -> str:
     """Header row (names with units), then raw values at full precision; empty = missing."""
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow([c.header for c in t.columns])
+    writer.writerow([csv_cell(c.header) for c in t.columns])
     for values in t.values:
-        writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in values])
+        writer.writerow([csv_cell(v) for v in values])
     return buf.getvalue()
 
 

@@ -8,8 +8,11 @@ are flattened: ``scf_method``/``scf_converged``/``scf_stable``/``scf_flags``,
 nested (options, metadata, parameters, published values) is a canonical JSON
 string, so every column has one type and Parquet can hold it.
 
-JSON export is ``{"run": <run record>, "results": [<rows>]}`` with the rows
-exactly as stored (nothing flattened).
+JSON export is ``{"run": <run record>, "chain": {"head_sha256", "rows"},
+"results": [<rows>]}`` with the rows exactly as stored (nothing flattened,
+``captured_output`` included) and the head of the run's verified hash chain
+(:mod:`benchsuite.store.chain`): kept elsewhere, it shows later whether the
+stored run is still the one exported.
 """
 
 from __future__ import annotations
@@ -80,7 +83,7 @@ def render_export(store, run_id: str, fmt: str) -> bytes:
     if fmt not in FORMATS:
         raise InputError(f"unknown export format {fmt!r}; choose one of {', '.join(FORMATS)}", field="--format")
     if fmt == "json":
-        doc = {"run": store.get_run(run_id).to_json_dict(),
+        doc = {"run": store.get_run(run_id).to_json_dict(), "chain": store.chain(run_id),
                "results": [r.to_json_dict() for r in store.results(run_id)]}
         return (json.dumps(doc, indent=2, allow_nan=False) + "\n").encode()
     frame = results_dataframe(store, run_id)

@@ -17,6 +17,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import re
 from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
 
@@ -72,6 +73,8 @@ class ResultRow:
     ``1000 * (energy_ha - reference_energy_ha)``.  ``secondary`` holds the
     other reference rungs and published values with the method's error
     against each; ``scf`` is ``{"method", "converged", "stable", "flags"}``.
+    ``captured_output`` is what the method's worker printed (stdout and
+    stderr), at most :data:`MAX_CAPTURED_CHARS` characters as stored.
     """
 
     run_id: str
@@ -107,6 +110,7 @@ class ResultRow:
     scan_length: float | None = None
     scf: dict = field(default_factory=dict)
     finished_at: str = field(default_factory=utc_now)
+    captured_output: str = ""
 
     def to_json_dict(self) -> dict:
         """Plain JSON-safe dict (non-finite floats become None)."""
@@ -170,12 +174,17 @@ class Column:
             return dumps(value)
         if self.kind == "real":
             value = float(value)
+            if value == 0.0:
+                return 0.0                # SQLite reads -0.0 back as 0.0; store what it will give back
             return value if math.isfinite(value) else None
         if self.kind == "bool":
             return int(bool(value))
         if self.kind == "int":
             return int(value)
-        return str(value)
+        text = str(value)
+        if not text.isascii():            # lone surrogates cannot be stored as UTF-8: make them U+FFFD
+            text = _SURROGATE.sub("\ufffd", text)
+        return text
 
     def from_db(self, value):
         """The stored value as the dataclass holds it."""
@@ -186,6 +195,9 @@ class Column:
         if self.kind == "bool":
             return bool(value)
         return value
+
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
 
 
 def _columns(spec: str) -> tuple[Column, ...]:
@@ -209,8 +221,13 @@ RESULT_COLUMNS = _columns("""
     reference_energy_ha:real error_mha:real threshold_mha:real! converged:bool iterations:int
     seconds:real! message:text! n_qubits:int n_terms:int one_norm_ha:real qwc_groups:int
     resources:json! metadata:json! parameters:json secondary:json! space:text! tags:json!
-    scan_parent:text scan_length:real scf:json! finished_at:text!
+    scan_parent:text scan_length:real scf:json! finished_at:text! captured_output:text!
 """)
+
+
+#: Bounds of what a row may hold as stored (SQLite INTEGER is 64-bit signed).
+MAX_CAPTURED_CHARS = 20 * 1024
+INT64_MAX = 2 ** 63 - 1
 
 
 def to_db_values(record, columns: tuple[Column, ...]) -> tuple:
@@ -221,3 +238,87 @@ def to_db_values(record, columns: tuple[Column, ...]) -> tuple:
 def from_db_values(cls, columns: tuple[Column, ...], values) -> object:
     """Rebuild a record of ``cls`` from a row whose values are in column order."""
     return cls(**{col.name: col.from_db(v) for col, v in zip(columns, values)})
+
+
+# -- rows that cannot be stored as they are ------------------------------------------
+
+#: JSON columns of ResultRow that must hold an object / a list (readers index into them).
+_OBJECT_FIELDS = frozenset({"options", "resources", "metadata", "secondary", "scf"})
+_LIST_FIELDS = frozenset({"tags", "parameters"})
+
+
+#: NOT NULL columns a method's result feeds: None there is empty text or JSON, or an unstorable number.
+_FED_BY_METHOD = frozenset({"seconds", "message", "captured_output", "resources", "metadata"})
+
+
+def _storable(col: Column, value):
+    """``value`` as bound to SQLite, or a ValueError saying why it cannot be stored in ``col``."""
+    if value is None:
+        if not (col.required and col.name in _FED_BY_METHOD):
+            return None                    # NULL; in another NOT NULL column SQLite refuses it (a bug upstream)
+        if col.kind in ("text", "json"):
+            return _placeholder(col)
+        raise ValueError("missing (None)")
+    if col.name in _OBJECT_FIELDS and not isinstance(value, dict):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not an object (dict)")
+    if col.name in _LIST_FIELDS and not isinstance(value, (list, tuple)):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a list")
+    if col.kind == "int" and not (isinstance(value, int) or hasattr(value, "__index__")):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not an integer")
+    if col.kind == "real" and (isinstance(value, (str, bytes)) or not hasattr(value, "__float__")):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a number")
+    if col.kind == "bool" and not isinstance(value, (bool, int)) and type(value).__name__ not in ("bool_", "bool"):
+        raise ValueError(f"{type(value).__name__} {value!r:.60} is not a boolean")
+    try:
+        stored = col.to_db(value)
+    except Exception as exc:            # TypeError, OverflowError, RecursionError, a __str__ that raises ...
+        raise ValueError(f"{type(exc).__name__}: {str(exc)[:200]}") from None
+    if col.kind == "int" and abs(stored) > INT64_MAX:
+        raise ValueError(f"{stored:.3e} is outside the 64-bit integer range")
+    return stored
+
+
+def _placeholder(col: Column):
+    """What an unstorable value becomes: NULL, or for a NOT NULL column an empty value of its type."""
+    if not col.required:
+        return None
+    if col.kind == "json":
+        return "[]" if col.name in _LIST_FIELDS else "{}"
+    return {"real": 0.0, "int": 0, "bool": 0}.get(col.kind, "")
+
+
+def storable_values(row: ResultRow) -> tuple[tuple, list[str]]:
+    """The row's values as bound to SQLite, and a note for every value that could not be stored.
+
+    A value of the wrong type or out of range (``iterations=10**20``, a set
+    or an object in ``resources``, text in a number column) becomes NULL (an
+    empty value of the column's type where NULL is not allowed: 0.0, "",
+    ``{}``, ``[]``) and is named in the notes; the caller stores such a row as
+    ``invalid``.  ``captured_output`` is cut to its last
+    :data:`MAX_CAPTURED_CHARS` characters.
+    """
+    values, notes = [], []
+    for col in RESULT_COLUMNS:
+        value = getattr(row, col.name)
+        if col.name == "captured_output":
+            value = bound_text(value, MAX_CAPTURED_CHARS, keep_end=True)
+        try:
+            values.append(_storable(col, value))
+        except ValueError as exc:
+            notes.append(f"{col.name}: {exc}")
+            values.append(_placeholder(col))
+    return tuple(values), notes
+
+
+def bound_text(text, limit: int, keep_end: bool = False) -> str:
+    """``text`` as a string of at most ``limit`` characters, the cut marked; None is "".
+
+    Keeps the start, or with ``keep_end`` the end (for output, whose last lines matter most).
+    """
+    text = "" if text is None else text if isinstance(text, str) else repr(text)
+    if len(text) <= limit:
+        return text
+    cut = len(text) - limit + 60
+    if keep_end:
+        return f"[... {cut:,} earlier characters not kept]\n" + text[cut:]
+    return text[:limit - 60] + f"\n[... {cut:,} more characters not kept]"

@@ -62,7 +62,7 @@ def test_latex_table_is_booktabs_and_escaped(registry):
         assert not re.search(r"(?<!\\)[%#_{}~^<>|\\]", plain), line
     caption = next(ln for ln in lines if ln.startswith(r"\caption"))
     assert "1.5936" in caption and table.results_hash in caption and r"$\le$" in caption
-    assert r"m$E_\mathrm{h}$" in lines[start + 2]           # units in the header
+    assert "Error / mHa" in lines[start + 2] and "mE" + "h" not in text   # units in the header, spelled mHa
 
 
 def test_markdown_is_a_valid_pipe_table(registry):
@@ -75,7 +75,7 @@ def test_markdown_is_a_valid_pipe_table(registry):
     assert all(ln.startswith("| ") and ln.endswith(" |") for ln in pipe)
     split = [re.split(r"(?<!\\)\|", ln)[1:-1] for ln in pipe]
     assert {len(c) for c in split} == {6}
-    assert [c.strip() for c in split[0]] == ["case", "method", "error / mEh", "sigma / mEh", "verdict",
+    assert [c.strip() for c in split[0]] == ["case", "method", "error / mHa", "sigma / mHa", "verdict",
                                              "sources (bib keys)"]
     assert all(re.fullmatch(r" (:---|---:) ", c) for c in split[1])
     assert len(pipe) == 2 + len(rows)
@@ -90,17 +90,17 @@ def test_csv_round_trips_through_pandas_with_units(registry):
     text, table = render_table(run, rows, "csv", registry=registry)
     frame = pd.read_csv(io.StringIO(text), float_precision="round_trip")
     assert list(frame.columns) == [c.header for c in table.columns]
-    assert {"E_method / Eh", "E_reference / Eh", "error / mEh", "threshold / mEh"} <= set(frame.columns)
+    assert {"E_method / Eh", "E_reference / Eh", "error / mHa", "threshold / mHa"} <= set(frame.columns)
     by_key = {(r.case, r.method): r for r in rows}
     assert len(frame) == len(rows)
     for _, line in frame.iterrows():
         r = by_key[(line["case"], line["method"])]
         if r.energy_ha is None:
-            assert pd.isna(line["E_method / Eh"]) and pd.isna(line["error / mEh"])
+            assert pd.isna(line["E_method / Eh"]) and pd.isna(line["error / mHa"])
         else:
-            assert line["E_method / Eh"] == r.energy_ha and line["error / mEh"] == r.error_mha   # exact
+            assert line["E_method / Eh"] == r.energy_ha and line["error / mHa"] == r.error_mha   # exact
         assert line["E_reference / Eh"] == r.reference_energy_ha and line["verdict"] == r.verdict
-        assert line["threshold / mEh"] == r.threshold_mha and line["reference rung"] == "fci"
+        assert line["threshold / mHa"] == r.threshold_mha and line["reference rung"] == "fci"
         assert line["results sha256[:12]"] == table.results_hash and line["run id"] == run.run_id
     assert frame["qubits"].dtype.kind == "i"
 
@@ -123,7 +123,7 @@ def test_columns_are_chosen_and_checked():
     run = make_run(methods=("a",))
     rows = [make_row(run.run_id, "h2", "a", 0.1)]
     text, table = render_table(run, rows, "csv", "case,error")
-    assert text.splitlines()[0] == "case,error / mEh"
+    assert text.splitlines()[0] == "case,error / mHa"
     with pytest.raises(InputError, match="unknown column"):
         render_table(run, rows, "csv", "case,energy_in_kcal")
     with pytest.raises(InputError, match="format"):
@@ -147,3 +147,56 @@ def test_table_command_writes_table_and_bib(tmp_path, registry):
     for key in dict.fromkeys(keys):
         assert written.count(registry.bib[key].raw) == 1
     assert written.count("@") == len(set(keys))
+
+
+
+HOSTILE = (r"\input{/etc/passwd}", "<script>alert(1)</script>", '=HYPERLINK("http://x")', "a|b\nc\r\x00d",
+           r"$x$ & \write18{rm -rf}", "@SUM(A1)")
+NUMBER_COLUMNS = "case,method,qubits,parameters,two_qubit_gates,depth,shots,error,seconds"
+
+
+def _hostile_rows(run):
+    """Values a careless or hostile plugin (or an edited database) could put in any column."""
+    rows = []
+    for i, text in enumerate(HOSTILE):
+        row = make_row(run.run_id, "h2", f"m{i}", 0.1 * i,
+                       resources={"n_parameters": text, "two_qubit_gates": 1.5, "circuit_depth": 10**20,
+                                  "shots": float("nan")})
+        row.method = text                               # text columns get the same text
+        row.n_qubits = text                             # and a number column of the row itself
+        rows.append(row)
+    return rows
+
+
+def test_latex_never_emits_a_command_from_a_value():
+    run = make_run(methods=("a",))
+    text, _ = render_table(run, _hostile_rows(run), "latex", NUMBER_COLUMNS)
+    body = text[text.index(r"\midrule"):text.index(r"\bottomrule")]
+    assert r"\input" not in body and r"\write18" not in body and "<script>" not in body
+    assert r"\textbackslash{}input\{/etc/passwd\}" in body
+    for line in body.splitlines()[1:]:
+        cells = _cells(line)
+        assert len(cells) == len(NUMBER_COLUMNS.split(","))
+        for cell in cells:                              # math mode only around a real number
+            for math in re.findall(r"(?<!\\)\$([^$]*)(?<!\\)\$", cell):
+                assert re.fullmatch(r"[+-]?[0-9.e+-]+", math), cell
+    assert "$100000000000000000000$" in body and "$1.5$" in body   # big ints, floats in an int column
+
+
+def test_markdown_and_csv_escape_hostile_values():
+    run = make_run(methods=("a",))
+    rows = _hostile_rows(run)
+    md, _ = render_table(run, rows, "markdown", NUMBER_COLUMNS)
+    lines = md.splitlines()[2:]
+    assert len(lines) == 2 + len(rows)                  # no value broke a line
+    for line in lines:
+        assert len(re.split(r"(?<!\\)\|", line)) == len(NUMBER_COLUMNS.split(",")) + 2
+    assert "<script>" not in md and r"\<script\>" in md and "\x00" not in md
+    text, table = render_table(run, rows, "csv", NUMBER_COLUMNS)
+    frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False)
+    assert len(frame) == len(rows)
+    for column in ("method", "qubits", "parameters"):
+        cells = list(frame[COLUMNS[column].header])
+        assert not any(c[:1] in "=+-@" for c in cells), cells        # no spreadsheet formula
+        assert "'=HYPERLINK(\"http://x\")" in cells and "'@SUM(A1)" in cells
+    assert frame["circuit depth"].tolist() == [str(10**20)] * len(rows)

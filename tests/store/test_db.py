@@ -17,7 +17,9 @@ import pytest
 from benchsuite.errors import InputError
 from benchsuite.store import SCHEMA_VERSION, ResultRow, ResultStore, RunRecord, default_db_path, task_key
 from benchsuite.store import provenance
-from benchsuite.store.records import RESULT_COLUMNS, RUN_COLUMNS
+from benchsuite.store.chain import TamperedRunError
+from benchsuite.store.db import RESULT_CHAIN, RUN_CHAIN
+from benchsuite.store.records import RESULT_COLUMNS, RUN_COLUMNS, to_db_values
 from tests.store import sample_key, sample_row, sample_run
 
 RUN = "r20261201-223015-3f9a"
@@ -60,11 +62,12 @@ def test_result_rows_agree_with_what_was_written(store):
 
 
 def test_columns_cover_the_dataclasses_and_the_migrated_tables(store):
-    for cls, columns, table in ((RunRecord, RUN_COLUMNS, "runs"), (ResultRow, RESULT_COLUMNS, "results")):
+    for cls, columns, table, chain in ((RunRecord, RUN_COLUMNS, "runs", RUN_CHAIN),
+                                       (ResultRow, RESULT_COLUMNS, "results", RESULT_CHAIN)):
         assert [f.name for f in dataclasses.fields(cls)] == [c.name for c in columns]
         info = raw(store, f"PRAGMA table_info({table})")
         assert [(name, bool(notnull) or bool(pk)) for _, name, _, notnull, _, pk in info] == \
-               [(c.name, c.required) for c in columns]
+               [(c.name, c.required) for c in columns] + [(name, False) for name in chain]
 
 
 def test_non_finite_floats_become_null_and_numpy_values_plain(store):
@@ -78,10 +81,11 @@ def test_non_finite_floats_become_null_and_numpy_values_plain(store):
     assert raw(store, "SELECT metadata FROM results") == [('{"a":null,"b":[0,1,2],"c":[1,null]}',)]
 
 
-def test_unserialisable_metadata_is_refused_before_writing(store):
-    with pytest.raises(TypeError, match="not plain data"):
-        store.add_result(dataclasses.replace(sample_row(RUN, 0), metadata={"x": object()}))
-    assert store.results(RUN) == []
+def test_unserialisable_metadata_is_stored_as_invalid(store):
+    store.add_result(dataclasses.replace(sample_row(RUN, 0), metadata={"x": object()}))
+    back, = store.results(RUN)
+    assert (back.status, back.verdict, back.metadata) == ("invalid", "invalid", {})
+    assert back.message.startswith("stored as invalid") and "metadata: TypeError" in back.message
 
 
 def test_same_task_again_replaces_the_row(store):
@@ -198,16 +202,28 @@ def test_v1_database_is_migrated_with_its_data(tmp_path):
     path = tmp_path / "old.sqlite"
     with ResultStore.open(path, upto=1) as old:
         assert old.schema_version == 1
-        old.begin_run(sample_run(RUN))
-        old.add_result(sample_row(RUN, 5))
+    v1 = [c for c in RESULT_COLUMNS if c.name != "captured_output"]
+    with sqlite3.connect(path) as conn:         # rows as benchsuite 0.1 wrote them
+        conn.execute(f"INSERT INTO runs ({', '.join(c.sql for c in RUN_COLUMNS)}) VALUES "
+                     f"({', '.join('?' * len(RUN_COLUMNS))})", to_db_values(sample_run(RUN), RUN_COLUMNS))
+        for i in (5, 2):
+            conn.execute(f"INSERT INTO results ({', '.join(c.sql for c in v1)}) VALUES ({', '.join('?' * len(v1))})",
+                         to_db_values(sample_row(RUN, i), v1))
     indexes = "SELECT name FROM sqlite_master WHERE type = 'index' AND name NOT LIKE 'sqlite_%' ORDER BY name"
     with sqlite3.connect(path) as conn:
         assert conn.execute(indexes).fetchall() == []
     with ResultStore.open(path) as new:
-        assert new.schema_version == 2
-        assert new.results(RUN) == [sample_row(RUN, 5)]
+        assert new.schema_version == SCHEMA_VERSION == 3
+        assert new.results(RUN) == sorted([sample_row(RUN, 5), sample_row(RUN, 2)], key=lambda r: r.task_key)
+        assert new.get_run(RUN) == sample_run(RUN)
     with sqlite3.connect(path) as conn:
-        assert conn.execute(indexes).fetchall() == [("results_by_task",), ("runs_by_status",)]
+        assert conn.execute(indexes).fetchall() == [("results_by_seq",), ("results_by_task",), ("runs_by_status",)]
+        # sealed in the order the rows finished, and an edit after the migration is caught
+        assert conn.execute("SELECT task_key FROM results ORDER BY seq").fetchall() == \
+               [(sample_key(2),), (sample_key(5),)]
+        conn.execute("UPDATE results SET verdict = 'pass' WHERE task_key = ?", (sample_key(2),))
+    with ResultStore.open(path) as new, pytest.raises(TamperedRunError, match=re.escape(sample_key(2))):
+        new.results(RUN)
 
 
 def test_newer_schema_is_refused(tmp_path):
