@@ -43,8 +43,11 @@ class Holder:
 
     def release(self) -> None:
         if self.proc.poll() is None:
-            self.proc.stdin.write("go\n")
-            self.proc.stdin.flush()
+            try:
+                self.proc.stdin.write("go\n")
+                self.proc.stdin.flush()
+            except BrokenPipeError:                  # a timed holder ended between poll() and write
+                pass
         assert self.proc.wait(30) == 0
         self.proc.stdin.close()
         self.proc.stdout.close()
