@@ -49,7 +49,10 @@ class Holder:
             except BrokenPipeError:                  # a timed holder ended between poll() and write
                 pass
         assert self.proc.wait(30) == 0
-        self.proc.stdin.close()
+        try:
+            self.proc.stdin.close()
+        except BrokenPipeError:                      # "go" still buffered for a holder that has gone
+            pass
         self.proc.stdout.close()
 
 
