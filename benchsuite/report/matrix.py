@@ -112,16 +112,16 @@ class AccuracyMatrix:
         return [(m, n) for m, n in out]
 
 
-def _group_key(r, registry) -> tuple[str, str, str, str]:
-    """(key, formula html, formula text, title) of the molecule a row belongs to."""
+def _group(r, registry) -> "MatrixGroup":
+    """An empty group for the molecule a row belongs to (its key: the ASCII formula, or the case name)."""
     from html import escape
 
     mol = molecule_of(r.case, registry)
     name = r.scan_parent or r.case
     if mol is None:
-        return name, escape(name), name, ""
+        return MatrixGroup(name, escape(name), name, "")
     case = registry.cases.get(r.scan_parent) or registry.cases[r.case]
-    return mol.text(), mol.html(), mol.text(), case.title
+    return MatrixGroup(mol.ascii(), mol.html(), mol.text(), case.title)
 
 
 def length_unit(case_name: str, registry=None) -> str:
@@ -173,8 +173,8 @@ def build_matrix(rows, methods: list[str], anchors: dict[str, str], gate: dict, 
     order = sorted(rows, key=lambda r: (r.scan_parent is not None, r.scan_parent or r.case, r.scan_length or 0.0,
                                         r.case, r.basis))
     for r in order:
-        key, html, text, title = _group_key(r, registry)
-        group = groups.setdefault(key, MatrixGroup(key, html, text, title))
+        candidate = _group(r, registry)
+        group = groups.setdefault(candidate.key, candidate)
         line = lines.get((r.case, r.basis))
         if line is None:
             line = lines[(r.case, r.basis)] = MatrixRow(r.case, r.basis, basis_label(r.basis), geometry_label(r, registry),
@@ -184,4 +184,4 @@ def build_matrix(rows, methods: list[str], anchors: dict[str, str], gate: dict, 
             r, anchors.get(r.task_key, ""), notes.get((r.method, r.case, r.basis, r.encoding)))
     present = list(dict.fromkeys(r.verdict for r in rows))
     verdicts = [v for v in verdict_order if v in present] + [v for v in present if v not in verdict_order]
-    return AccuracyMatrix(columns, sorted(groups.values(), key=lambda g: g.formula_text.lower()), several, verdicts)
+    return AccuracyMatrix(columns, sorted(groups.values(), key=lambda g: g.key.lower()), several, verdicts)

@@ -111,11 +111,17 @@ def scan_svg(scan, salt: str) -> str:
     bottom.annotate(f"threshold {thr:.2f} mHa", xy=(1.0, thr), xycoords=("axes fraction", "data"),
                     xytext=(-4, 3), textcoords="offset points", ha="right", va="bottom", fontsize=7.5,
                     color="#1e6b47")
+    floored = []
     for i, s in enumerate(scan.series):
         style = SERIES_STYLES[i % len(SERIES_STYLES)]
         top.plot(s.lengths, s.energies, color=style[0], marker=style[1], ms=4, ls=style[2], lw=1.3,
                  label=mpl_text(s.method))
         _error_series(bottom, s, style, low)
+        if any(e is not None and abs(e) < low for e in s.errors):
+            floored.append(s.method)
+    if floored:
+        bottom.annotate(mpl_text(f"▼ at or below {low:g} mHa: " + ", ".join(floored)), xy=(0.01, 0.03),
+                        xycoords="axes fraction", ha="left", va="bottom", fontsize=7.5, color="#444444")
     top.set_ylabel("energy / Eh")
     top.legend(fontsize=8, frameon=False)
     bottom.yaxis.set_major_formatter(FuncFormatter(lambda y, _pos: f"{y:g}"))
