@@ -499,7 +499,8 @@ def _bibliography(rows, registry) -> list[Citation]:
             cite(case.geometry_source, f"geometry of {r.case}")
         for p in (r.secondary or {}).get("published") or []:
             if p.get("source"):
-                cite(p["source"], f"published {p.get('method', '?')} energy of {r.case} [{p.get('basis', r.basis)}]")
+                cite(p["source"], f"published {p.get('method', '?')} energy of "
+                                  f"{task_label(r.case, p.get('basis', r.basis))}")
     out = []
     for key, what in uses.items():
         entry = None if registry is None else registry.bib.get(key)
