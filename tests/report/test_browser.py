@@ -121,8 +121,16 @@ def test_real_report_in_chromium(browser, real_run, registry, tmp_path):
     target = w.page.evaluate("location.hash").lstrip("#")
     assert target.startswith("task-") and w.page.locator(f"tr#{target}").is_visible()
 
-    # sorting: the error column of the first method table, ascending then descending
-    table = w.page.locator("table.results").first
+    _check_sorting(w.page.locator("table.results").first)
+    w.page.screenshot(path=str(tmp_path / "report.png"), full_page=True)
+    assert (tmp_path / "report.png").stat().st_size > 10_000
+    _check_print(w, rows, tmp_path)
+    assert w.errors == [] and w.dialogs == []
+    assert w.others(report) == []
+
+
+def _check_sorting(table) -> None:
+    """The error column of a method table sorts ascending, then descending."""
     header = table.locator("thead th", has_text="error / mHa")
     column = [h.inner_text() for h in table.locator("thead th").all()].index(header.inner_text())
     header.locator("button").click()
@@ -134,17 +142,15 @@ def test_real_report_in_chromium(browser, real_run, registry, tmp_path):
     header.locator("button").click()
     assert errors() == sorted(errors(), reverse=True)
 
-    w.page.screenshot(path=str(tmp_path / "report.png"), full_page=True)
-    assert (tmp_path / "report.png").stat().st_size > 10_000
 
-    # on paper: no controls, every row, verdicts still spelled out
+def _check_print(w, rows, tmp_path) -> None:
+    """On paper: no controls, every row, verdicts still spelled out."""
     w.page.emulate_media(media="print")
     assert not w.page.locator("#controls").is_visible() and len(w.visible_rows()) == len(rows)
     assert w.page.locator("table.results span.verdict:visible").count() == len(rows)
     w.page.pdf(path=str(tmp_path / "report.pdf"))
     assert (tmp_path / "report.pdf").read_bytes().startswith(b"%PDF")
-    assert w.errors == [] and w.dialogs == []
-    assert w.others(report) == []
+    w.page.emulate_media(media="screen")
 
 
 def _screenshot_dir(tmp_path: Path) -> Path:
