@@ -287,3 +287,20 @@ def test_empty_sections_are_left_out():
     assert 'id="curves"' not in html and 'href="#curves"' not in html      # no scan, no curves
     assert 'id="baseline"' not in html and 'id="bibliography"' not in html
     assert "GATE PASSED" in html and "GATE FAILED" not in html and "exit code 0" in html
+
+
+def test_error_axis_is_logarithmic_with_the_threshold_line():
+    """|error| on a log axis from the floor (or a decade under the smallest error) to a decade over
+    the largest, the threshold always inside; errors under the floor are named on the plot."""
+    from benchsuite.report.plots import ERROR_FLOOR_MHA, error_axis_limits
+
+    assert error_axis_limits([0.0, 1e-9, -277.0], 1.5936) == (ERROR_FLOOR_MHA, 1000.0)
+    assert error_axis_limits([5.0, -40.0], 1.5936) == (0.1, 1000.0)
+    assert error_axis_limits([None], 1.5936) == (0.1, 10.0)
+    run = make_run(methods=("exact", "rough"))
+    rows = [make_row(run.run_id, f"s@{x:g}", m, err, scan_parent="s", scan_length=x)
+            for x in (0.7, 1.0, 1.5) for m, err in (("exact", 1e-7), ("rough", -12.0 * x))]
+    (scan,) = build_report(run, rows).scans
+    svg = scan_svg(scan, "axis")
+    assert "threshold 1.59 mHa" in svg and "|error| / mHa" in svg
+    assert "at or below 0.001 mHa: exact" in svg and "rough" not in svg.split("at or below")[1].split("<")[0]
