@@ -90,7 +90,7 @@ def _error_series(ax, s, style, bottom: float) -> None:
     if any(x is not None for x in s.sigmas_mha):
         ys = [float("nan") if v is None else v for v in sizes]
         err = [0.0 if x is None else x for x in s.sigmas_mha]
-        lower = [min(sigma, y - bottom) if y == y else 0.0 for sigma, y in zip(err, ys)]
+        lower = [0.0 if math.isnan(y) else min(sigma, y - bottom) for sigma, y in zip(err, ys)]
         ax.errorbar(s.lengths, ys, yerr=[lower, err], color=colour, ls="none", capsize=2, lw=0.9)
 
 
