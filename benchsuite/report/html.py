@@ -317,7 +317,7 @@ def build_report(run, rows, registry=None, title: str | None = None) -> ReportDa
     gate = stored_gate(run, rows)
     counts = _counts(r.verdict for r in rows)
     return ReportData(
-        title=title or f"benchsuite report: run {run.run_id}", gate=gate,
+        title=title or default_title(run, methods), gate=gate,
         run_id=run.run_id, gate_passed=gate["passed"], n_tasks=len(rows), n_failing=len(gate["failing"]),
         counts=counts, threshold_mha=run.threshold_mha,
         threshold_source=run.threshold_source, summaries=summaries, tables=tables,
@@ -328,6 +328,15 @@ def build_report(run, rows, registry=None, title: str | None = None) -> ReportDa
         provenance=_provenance(run, rows), bibliography=_bibliography(rows, registry),
         tags=sorted({t for r in rows for t in r.tags}), verdicts=list(counts),
         within_label=within_label(rows, run.threshold_mha))
+
+
+def default_title(run, methods: list[str]) -> str:
+    """``exact-sector and tallowick on the smoke suite``: what was judged on what."""
+    names = [m.rsplit(":", 1)[-1] if ":" in m else m for m in methods] or list(run.methods)
+    who = names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1] if names else "no method"
+    what = f"the {run.suite} suite" if run.suite else (
+        ", ".join(run.cases) if 0 < len(run.cases) <= 4 else f"{len(run.cases)} cases")
+    return f"{who} on {what}"
 
 
 def stored_gate(run, rows) -> dict:
