@@ -10,10 +10,10 @@ symmetry-adapted form over the largest Abelian subgroup (``D2h`` and its
 subgroups), and every orbital belongs to one irreducible representation.
 UHF runs without symmetry constraints (same frame).
 
-Stability: first PySCF's internal stability analysis within the symmetry
+Stability: first the internal stability analysis within the symmetry
 (a second-order rotation that lowers the energy means a saddle point), then
 a check of every rotation, the symmetry-breaking ones included
-(:func:`_unconstrained_instability`).  An unstable or unconverged SCF is
+(:func:`_hessian_search`).  An unstable or unconverged SCF is
 restarted from the orbitals that follow the instability, up to
 ``max_retries`` times; whatever remains wrong is recorded in
 :class:`ScfSummary.flags` and carried into every output.  If the lowest
@@ -52,6 +52,8 @@ UNSTABLE_EIGENVALUE = -1e-5
 #: Version of the orbital choice (symmetry adaptation, degenerate sets); part of every cache key.
 ORBITALS_VERSION = "symmetry-adapted-1"
 SYMMETRY_BROKEN = "symmetry-broken"
+#: Orbital Hessians up to this many rotations are built densely in the stability search.
+DENSE_HESSIAN_MAX = 120
 
 
 @dataclass
@@ -172,15 +174,21 @@ def _solve(mol, kind: str, max_retries: int):
     stable, restarts, more = _stabilise(mf, _internal_stable, max_retries)
     attempts, cycles = 1 + restarts, cycles + more
     if symmetric and stable and mf.converged:
-        free = _make(without_symmetry(mol), kind)
-        free.mo_coeff, free.mo_occ, free.mo_energy = mf.mo_coeff, mf.mo_occ, mf.mo_energy
-        free.e_tot, free.converged = mf.e_tot, True
-        unstable, mo = _unconstrained_instability(free)
+        free = _unconstrained_copy(mf, kind)
+        unstable, mo = _hessian_search(free, with_symmetry=False)
         if unstable:
             _restart(free, mo)
             stable, restarts, more = _stabilise(free, _full_stable, max(max_retries - attempts + 1, 1))
             mf, attempts, cycles = free, attempts + 1 + restarts, cycles + _cycles(free) + more
     return mf, stable, attempts, cycles
+
+
+def _unconstrained_copy(mf, kind: str):
+    """The converged solution ``mf`` as an SCF object without symmetry constraints."""
+    free = _make(without_symmetry(mf.mol), kind)
+    free.mo_coeff, free.mo_occ, free.mo_energy = mf.mo_coeff, mf.mo_occ, mf.mo_energy
+    free.e_tot, free.converged = mf.e_tot, mf.converged
+    return free
 
 
 def run_scf(mol, kind: str, max_retries: int = 3):
@@ -218,52 +226,64 @@ def _cycles(mf) -> int:
 
 
 def _internal_stable(mf) -> tuple[bool, np.ndarray]:
-    mo_i, _, stable_i, _ = mf.stability(internal=True, external=False, return_status=True)
-    return bool(stable_i), mo_i
+    """Internal stability within the SCF's own constraints (symmetry, if adapted)."""
+    if mf.mo_coeff.ndim == 3:  # UHF: PySCF's own analysis
+        mo_i, _, stable_i, _ = mf.stability(internal=True, external=False, return_status=True)
+        return bool(stable_i), mo_i
+    unstable, mo = _hessian_search(mf, with_symmetry=bool(mf.mol.symmetry))
+    return not unstable, mo
 
 
 def _full_stable(mf) -> tuple[bool, np.ndarray]:
-    unstable, mo = _unconstrained_instability(mf)
+    unstable, mo = _hessian_search(mf, with_symmetry=False)
     return not unstable, mo
 
 
 def _external_stable(mf) -> bool:
+    """RHF -> UHF stability over every rotation (PySCF's analysis, symmetry constraints off)."""
+    if mf.mol.symmetry:
+        mf = _unconstrained_copy(mf, "rhf")
     _, _, _, stable_e = mf.stability(internal=False, external=True, return_status=True)
     return bool(stable_e)
 
 
-def _unconstrained_instability(mf) -> tuple[bool, np.ndarray]:
-    """Lowest eigenvalue of the orbital Hessian over every rotation, symmetry-breaking included.
+def _hessian_search(mf, with_symmetry: bool) -> tuple[bool, np.ndarray]:
+    """Lowest eigenvalue of the restricted orbital Hessian; ``with_symmetry=False`` includes
+    the rotations between different irreducible representations.
 
     PySCF's ``stability`` starts its Davidson search from the gradient, which is exactly zero
     for rotations between different irreducible representations of a symmetry-adapted
-    solution, so it never looks there; this search starts from the 16 rotations of lowest
-    diagonal Hessian as well.  Restricted kinds only (UHF keeps PySCF's own check).
+    solution (and fails when every allowed element is zero, e.g. H2), so it never looks
+    there.  Here the Hessian (PySCF's ``newton_ah`` products) is built densely up to
+    DENSE_HESSIAN_MAX rotations, else searched by Davidson from the 16 rotations of lowest diagonal.
     Returns ``(unstable, orbitals rotated along the lowest mode)``.
     """
     from pyscf import lib
     from pyscf.scf import hf
     from pyscf.soscf import newton_ah
 
-    if mf.mo_coeff.ndim != 2:
-        stable, mo = _internal_stable(mf)
-        return not stable, mo
     gen = newton_ah.gen_g_hop_rohf if mf.mol.spin else newton_ah.gen_g_hop_rhf
-    _, hop, hdiag = gen(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=False)
-    hdiag = 2 * hdiag
-    starts = []
-    for k in np.argsort(hdiag, kind="stable")[:16]:
-        unit = np.zeros_like(hdiag)
-        unit[k] = 1.0
-        starts.append(unit)
+    _, hop, hdiag = gen(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=with_symmetry)
+    allowed = np.flatnonzero(hdiag != 0) if with_symmetry else np.arange(hdiag.size)
+    if allowed.size == 0:
+        return False, mf.mo_coeff
+    eye = np.eye(hdiag.size)
+    if allowed.size <= DENSE_HESSIAN_MAX:
+        cols = np.array([2 * hop(eye[k]).real for k in allowed]).T[allowed]
+        w, u = np.linalg.eigh(0.5 * (cols + cols.T))
+        e, v = w[0], np.zeros(hdiag.size)
+        v[allowed] = u[:, 0]
+    else:
+        diag = 2 * hdiag
+        starts = [eye[k] for k in allowed[np.argsort(diag[allowed], kind="stable")[:16]]]
 
-    def precond(dx, e, _x0):
-        shifted = hdiag - e
-        shifted[np.abs(shifted) < 1e-8] = 1e-8
-        return dx / shifted
+        def precond(dx, e, _x0):
+            shifted = diag - e
+            shifted[np.abs(shifted) < 1e-8] = 1e-8
+            return dx / shifted
 
-    e, v = lib.davidson(lambda x: 2 * hop(x).real, starts, precond, tol=1e-6, nroots=1,
-                        max_space=len(starts) + 24, verbose=0)
+        e, v = lib.davidson(lambda x: 2 * hop(x).real, starts, precond, tol=1e-6, nroots=1,
+                            max_space=len(starts) + 24, verbose=0)
     if e >= UNSTABLE_EIGENVALUE:
         return False, mf.mo_coeff
     return True, mf.mo_coeff @ newton_ah.expmat(hf.unpack_uniq_var(v, mf.mo_occ))
