@@ -61,9 +61,10 @@ class ScfSummary:
     """What the SCF did.  ``energy_ha`` is the total energy (nuclear repulsion included).
 
     ``point_group`` is PySCF's detected group of the nuclei, ``symmetry_group``
-    the Abelian subgroup the orbitals are adapted to; ``symmetry_breaking`` is
-    the largest density-matrix element between different irreducible
-    representations of that subgroup (0 for a symmetric solution).
+    the group PySCF labels orbitals in (its largest Abelian subgroup; for linear
+    molecules Dooh/Coov with each E irrep split into x/y components, i.e. D2h/C2v
+    in effect); ``symmetry_breaking`` is the largest density-matrix element between
+    different irreducible representations of it (0 for a symmetric solution).
     """
 
     method: str
