@@ -44,6 +44,7 @@ def _rotated(atoms, angle: float):
     return [(sym, tuple(float(v) for v in rot @ np.array(xyz))) for sym, xyz in atoms]
 
 
+@pytest.mark.slow
 def test_atom_order_and_orientation_do_not_change_the_hamiltonian(tmp_path):
     from benchsuite.chem.space import case_integrals
 
@@ -138,6 +139,7 @@ def test_symmetry_broken_flag_on_o2_triplet_and_not_on_n2(registry):
     assert n2.scf.point_group == "Dooh"
 
 
+@pytest.mark.slow
 def test_symmetry_broken_shown_in_the_ladder(registry, ladder_cache):
     from benchsuite.chem.ladder import reference_ladder
 

@@ -118,6 +118,7 @@ def _check(case, basis: str, ladder_cache) -> None:
     assert norm == pytest.approx(norm_of, rel=1e-9)
 
 
+@pytest.mark.slow
 def test_nh3_matches_openfermion_on_symmetric_orbitals(registry, ladder_cache):
     _check(registry.case("nh3"), "sto-3g", ladder_cache)
 
