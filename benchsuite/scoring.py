@@ -123,7 +123,10 @@ def result_status(energy_ha: float, reference_ha: float | None, sector_ha: float
                                f"{floor:.10f} Eh (lowest (N, S_z) state, any spin): wrong sector or constant?")
     off = state_deviations(state_check)
     if off:
-        return "wrong-state", "returned state is not the declared one: " + "; ".join(off)
+        measured = ", ".join(f"{sym} = {state_check[key]:.6f}" for key, sym in STATE_QUANTITIES
+                             if as_energy(state_check.get(key)) is not None)
+        return "wrong-state", (f"returned state is not the declared one: {'; '.join(off)} "
+                               f"(measured {measured}; tolerance {STATE_TOLERANCE:g})")
     if variational and reference_ha is not None and energy_ha < reference_ha - BELOW_EXACT_TOLERANCE_HA:
         return "wrong-state", (f"variational energy {energy_ha:.10f} Eh lies "
                                f"{error_mha(reference_ha, energy_ha):.6f} mHa below the declared-spin "

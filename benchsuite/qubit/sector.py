@@ -470,10 +470,11 @@ def sector_eigen(ham: QubitHamiltonian, n_electrons: int | None = None, two_sz: 
     ``spin_square`` is None when S^2 does not commute with a tapered symmetry.
 
     ``multiplicity`` (2S + 1, with S >= |S_z|): the lowest roots *of that spin* only,
-    found with the penalty H + lambda (S^2 - S(S+1)), which moves every state of higher
-    spin up by at least 2 lambda (S + 1) and leaves the right-spin ones where they are
-    (S^2 commutes with H); lambda starts at :data:`SPIN_PENALTY_HA` and is quadrupled
-    until every root has <S^2> within :data:`SPIN_TOLERANCE` of S(S+1).  Energies are
+    found with the penalty H + lambda (S^2 - S(S+1))^2 (:class:`SpinPenalised`), which moves
+    every state of another spin up and leaves the right-spin ones where they are (S^2
+    commutes with H); lambda starts at :data:`SPIN_PENALTY_HA` and is quadrupled until every
+    root has <S^2> within :data:`SPIN_TOLERANCE` of S(S+1).  (When the plain lowest roots
+    already have that spin they are returned without a penalty.)  Energies are
     then <H> of those roots.  ValueError if S^2 has no form on a tapered register.
     """
     check_qubit_limit(ham.n_modes, max_qubits)
@@ -506,21 +507,58 @@ def sector_eigen(ham: QubitHamiltonian, n_electrons: int | None = None, two_sz: 
                         states=sector.states if keep_vectors else None)
 
 
+class SpinPenalised:
+    """H + lambda (S^2 - t)^2 on a sector, for the lowest states with <S^2> = t.
+
+    Every state of another spin S' moves up by lambda (S'(S'+1) - t)^2 >= lambda (2S + 2)^2
+    above or below; states of the target spin stay put (S^2 commutes with H).  The
+    ``diagonal`` (Davidson's preconditioner) is H's diagonal plus lambda (diag S^2 - t)^2,
+    an approximation; products and :meth:`toarray` are exact.
+    """
+
+    def __init__(self, op: SectorOperator, s2_op: SectorOperator, target: float, weight: float,
+                 shift: float = 0.0):
+        self.op, self.s2_op, self.target, self.weight, self.shift = op, s2_op, target, weight, shift
+        self.diagonal = op.diagonal - shift + weight * (np.real(s2_op.diagonal) - target) ** 2
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.op.shape
+
+    @property
+    def dtype(self):
+        return np.result_type(self.op.dtype, self.s2_op.dtype)
+
+    def __matmul__(self, v: np.ndarray) -> np.ndarray:
+        w = self.s2_op @ v - self.target * v
+        return self.op @ v - self.shift * v + self.weight * (self.s2_op @ w - self.target * w)
+
+    def shifted(self, shift: float) -> "SpinPenalised":
+        return SpinPenalised(self.op, self.s2_op, self.target, self.weight, self.shift + shift)
+
+    def toarray(self) -> np.ndarray:
+        s2 = self.s2_op.toarray() - self.target * np.eye(self.shape[0])
+        return self.op.toarray() - self.shift * np.eye(self.shape[0]) + self.weight * (s2 @ s2)
+
+
 def _lowest_of_spin(op: SectorOperator, s2_op: SectorOperator, multiplicity: int, two_sz: int, n_roots: int,
                     guess, shift: float, max_rounds: int = 6):
     """Lowest ``n_roots`` eigenpairs of ``op`` with <S^2> = S(S+1) (see :func:`sector_eigen`)."""
     if multiplicity < 1 or multiplicity - 1 < abs(two_sz) or (multiplicity - 1 - two_sz) % 2:
         raise InputError(f"multiplicity {multiplicity} has no state with 2*Sz = {two_sz}", field="multiplicity")
     target = 0.25 * (multiplicity - 1) * (multiplicity + 1)
+    energies, vectors, solver = lowest_eigenpairs(op, n_roots, guess, shift=shift)
+    s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), s2_op @ vectors))
+    if np.all(np.abs(s2 - target) <= SPIN_TOLERANCE):     # the plain lowest roots have the spin already
+        return energies, vectors, solver
     weight = SPIN_PENALTY_HA
     for _ in range(max_rounds):
-        penalised = SectorOperator(op.half + weight * s2_op.half,
-                                   op.diagonal + weight * (s2_op.diagonal - target))
-        _, vectors, solver = lowest_eigenpairs(penalised, n_roots, guess, shift=shift)
+        _, vectors, solver = lowest_eigenpairs(SpinPenalised(op, s2_op, target, weight), n_roots, guess,
+                                               shift=shift)
         s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), s2_op @ vectors))
         if np.all(np.abs(s2 - target) <= SPIN_TOLERANCE):
             energies = np.real(np.einsum("ik,ik->k", vectors.conj(), op @ vectors))
-            return energies, vectors, f"{solver}, spin penalty {weight:g} Eh"
+            return energies, vectors, f"{solver}, spin penalty {weight:g} (S^2 - {target:g})^2 Eh"
         weight *= 4.0
     raise RuntimeError(f"no root with <S^2> = {target} found (last <S^2>: {s2}); is the spin in this sector?")
 
