@@ -269,7 +269,8 @@ def solve_record(prepared, outcome) -> dict:
                           "energy_ha": None if ref is None else ref.energy_ha},
             "error_mha": err, "status": outcome.status, "converged": outcome.converged,
             "iterations": outcome.iterations, "seconds": outcome.seconds, "resources": outcome.resources,
-            "message": outcome.message, "scf_flags": prepared.ladder.scf.flags}
+            "message": outcome.message, "scf_flags": prepared.ladder.scf.flags,
+            "state_check": outcome.metadata.get("state_check")}
 
 
 def _run_solve(args) -> int:
