@@ -30,6 +30,9 @@ from benchsuite.qubit.majorana import number_pauli, spin_square_pauli
 from benchsuite.qubit.pauli import PauliSum, i_power, parity, popcount
 from benchsuite.scoring import state_deviations
 
+#: Basis states per block when signs are evaluated (bounds the work arrays to terms x block).
+_CHUNK = 1 << 14
+
 #: Largest register a dense state vector is accepted for (2^n complex amplitudes).
 MAX_DENSE_QUBITS = 26
 
@@ -87,9 +90,11 @@ def expectation(pauli: PauliSum, states: np.ndarray, amps: np.ndarray) -> comple
         hit = states[pos] == targets
         if not np.any(hit):
             continue
-        b = states[hit]
-        phase = weights[s:e] @ (1 - 2 * parity(zs[s:e, None] & b[None, :]))
-        total += np.sum(np.conj(amps[pos[hit]]) * phase * amps[hit])
+        b, bra, ket = states[hit], np.conj(amps[pos[hit]]), amps[hit]
+        for lo in range(0, b.size, _CHUNK):          # bounded memory: terms x chunk signs at a time
+            hi = lo + _CHUNK
+            phase = weights[s:e] @ (1 - 2 * parity(zs[s:e, None] & b[None, lo:hi]))
+            total += np.sum(bra[lo:hi] * phase * ket[lo:hi])
     return complex(total)
 
 
