@@ -43,6 +43,7 @@ VERDICT_LABELS = {
     "pass": ("PASS", "✓"), "fail": ("FAIL", "✗"), "below-exact": ("BELOW EXACT", "▼"),
     "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"), "timeout": ("TIMEOUT", "⌛"),
     "invalid": ("INVALID", "⊘"), "unconverged": ("NOT CONVERGED", "↻"),
+    "wrong-state": ("WRONG STATE", "≠"),
 }
 #: Rungs in ladder order; any other rung (UHF-based ones) follows, the primary last.
 RUNG_ORDER = ("hf", "mp2", "ccsd", "ccsd(t)")
