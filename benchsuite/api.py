@@ -179,12 +179,15 @@ class Assessment:
 
 def result_fields(problem: PreparedProblem, result: MethodResult, method_name: str = "api",
                   variational: bool = True) -> dict:
-    """The gate's checked fields of a :class:`MethodResult` (contract checks and the below-exact test
-    against the primary reference), as a worker would send them."""
-    from benchsuite.runner import validate_result
+    """The gate's checked fields of a :class:`MethodResult`: the contract checks and the state check
+    a worker makes, then the status the parent decides (``ok``, ``below-exact`` against the lowest
+    (N, S_z) state, ``wrong-state`` against the declared-spin reference), exactly as in a run."""
+    from benchsuite.runner import judged_fields, validate_result
 
     ref = problem.reference
-    return validate_result(result, method_name, None if ref is None else ref.energy_ha, variational)
+    fields = validate_result(result, method_name, problem.problem)
+    return judged_fields(fields, None if ref is None else ref.energy_ha,
+                         None if ref is None else getattr(ref, "sector_lowest_ha", None), variational)
 
 
 def assess(problem: PreparedProblem, energy: float | MethodResult, *, stderr_ha: float | None = None,

@@ -204,8 +204,7 @@ def _method_record(m) -> dict:
     return {"name": m.name, "description": getattr(m, "description", ""),
             "variational": bool(getattr(m, "variational", False)),
             "stochastic": bool(getattr(m, "stochastic", False)),
-            "options": [{"name": o.name, "type": o.kind.__name__, "default": o.default, "help": o.help,
-                         **({"choices": list(o.choices)} if o.choices else {})} for o in m.options]}
+            "options": [o.describe() for o in m.options]}
 
 
 def _run_methods(args) -> int:
@@ -263,7 +262,8 @@ def solve_record(prepared, outcome) -> dict:
                           "energy_ha": None if ref is None else ref.energy_ha},
             "error_mha": err, "status": outcome.status, "converged": outcome.converged,
             "iterations": outcome.iterations, "seconds": outcome.seconds, "resources": outcome.resources,
-            "message": outcome.message, "scf_flags": prepared.ladder.scf.flags}
+            "message": outcome.message, "scf_flags": prepared.ladder.scf.flags,
+            "state_check": outcome.metadata.get("state_check")}
 
 
 def _run_solve(args) -> int:
@@ -290,7 +290,8 @@ def _run_solve(args) -> int:
         outcome = Outcome(method=args.method, status="error", message=f"plugin unusable: {failure.reason}")
     else:
         outcome = execute(method, prepared.problem, options, timeout_s=args.timeout_s,
-                          exact_ha=None if ref is None else ref.energy_ha)
+                          exact_ha=None if ref is None else ref.energy_ha,
+                          sector_ha=None if ref is None else ref.sector_lowest_ha)
     record = solve_record(prepared, outcome)
     if args.format == "json":
         _print_json(record)

@@ -9,7 +9,14 @@ its worker died); ``timeout`` (overran its budget, stopped from outside);
 ``invalid`` (returned something that is not a finite energy, or broke the
 result contract); ``below-exact`` (a variational method returned an energy
 more than :data:`BELOW_EXACT_TOLERANCE_HA` below the exact sector energy: a
-wrong sector, a lost constant, a non-Hermitian bug).
+wrong sector, a lost constant, a non-Hermitian bug); ``wrong-state`` (the
+method answered for a state other than the declared one: a variational energy
+below the declared-spin reference but not below the lowest state of the
+(N, S_z) sector, or a returned state whose <N>, <S_z> or <S^2> is off the
+declared value by more than :data:`STATE_TOLERANCE`).  Methods report only
+``ok``/``error``/``timeout``/``invalid`` (:data:`WORKER_STATUSES`); ``below-exact``
+and ``wrong-state`` are decided from their energy and state check by
+:func:`result_status`, in the parent process, and nowhere else.
 
 Verdicts (what it means against the threshold) add ``pass``, ``fail``,
 ``inconclusive`` and ``unconverged``; see :func:`verdict`.  Stochastic results
@@ -33,11 +40,18 @@ BELOW_EXACT_TOLERANCE_HA = 1e-6
 DEFAULT_THRESHOLD_MHA = CHEMICAL_ACCURACY_MHA
 THRESHOLD_SOURCE = f"1 kcal/mol = {CHEMICAL_ACCURACY_MHA:.4f} mHa, {CONSTANTS_SOURCE}"
 
-STATUSES = ("ok", "error", "timeout", "invalid", "below-exact")
-VERDICTS = ("pass", "fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact")
+#: A returned state's <N>, <S_z> or <S^2> this far from the declared value is another state.
+STATE_TOLERANCE = 1e-4
+
+STATUSES = ("ok", "error", "timeout", "invalid", "below-exact", "wrong-state")
+#: What a worker may report; the rest of :data:`STATUSES` is decided by :func:`result_status`.
+WORKER_STATUSES = ("ok", "error", "timeout", "invalid")
+VERDICTS = ("pass", "fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact",
+            "wrong-state")
 
 #: Verdicts that fail the gate (``inconclusive`` unless the run allows it).
-FAILING = ("fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact")
+FAILING = ("fail", "inconclusive", "unconverged", "error", "timeout", "invalid", "below-exact", "wrong-state")
+
 
 #: Multiple-testing procedures for a run's stochastic fail claims (the first is the default).
 MULTIPLE_TESTING = ("holm", "bh")
@@ -65,11 +79,59 @@ def as_energy(value) -> float | None:
 
 
 def run_status(energy_ha: float, exact_ha: float | None, variational: bool) -> tuple[str, str]:
-    """``(status, message)`` for a finite energy of a method that completed."""
-    if variational and exact_ha is not None and energy_ha < exact_ha - BELOW_EXACT_TOLERANCE_HA:
+    """``(status, message)`` from the energy alone (no declared-spin reference, no state check):
+    :func:`result_status` with the sector's lowest energy as the only reference."""
+    return result_status(energy_ha, exact_ha, exact_ha, variational)
+
+
+#: Quantities of a state check (:mod:`benchsuite.methods.statecheck`): (key, symbol).
+STATE_QUANTITIES = (("n_electrons", "<N>"), ("sz", "<S_z>"), ("s2", "<S^2>"))
+
+
+def state_deviations(check: dict | None, tolerance: float = STATE_TOLERANCE) -> list[str]:
+    """The quantities of a state check that are off their declared values, as phrases.
+
+    ``check`` holds measured values under the keys of :data:`STATE_QUANTITIES` (None: not
+    measurable) and the declared ones under ``check["declared"]``.  No check, nothing off.
+    """
+    if not check or not isinstance(check.get("declared"), dict):
+        return []
+    off = []
+    for key, symbol in STATE_QUANTITIES:
+        got, want = as_energy(check.get(key)), as_energy(check["declared"].get(key))
+        if got is not None and want is not None and abs(got - want) > tolerance:
+            off.append(f"{symbol} = {got:.6f} (declared {want:.6f})")
+    return off
+
+
+def result_status(energy_ha: float, reference_ha: float | None, sector_ha: float | None, variational: bool,
+                  state_check: dict | None = None) -> tuple[str, str]:
+    """``(status, message)`` of a completed method with a finite energy: the one place where
+    ``below-exact`` and ``wrong-state`` are decided.
+
+    ``reference_ha``: the lowest state of the declared spin (FCI/CASCI); ``sector_ha``: the lowest
+    state of the (N, S_z) sector, any spin (<= the reference; None: taken equal to it).  In order:
+    a variational energy below ``sector_ha`` by more than :data:`BELOW_EXACT_TOLERANCE_HA` is
+    ``below-exact``; a state check with a quantity off by more than :data:`STATE_TOLERANCE` is
+    ``wrong-state``; a variational energy below ``reference_ha`` (but not below the sector) is
+    ``wrong-state``; else ``ok``.
+    """
+    floor = reference_ha if sector_ha is None else sector_ha
+    if variational and floor is not None and energy_ha < floor - BELOW_EXACT_TOLERANCE_HA:
         return "below-exact", (f"variational energy {energy_ha:.10f} Eh lies "
-                               f"{error_mha(exact_ha, energy_ha):.6f} mHa below the exact sector energy "
-                               f"{exact_ha:.10f} Eh: wrong sector or constant?")
+                               f"{error_mha(floor, energy_ha):.6f} mHa below the exact sector energy "
+                               f"{floor:.10f} Eh (lowest (N, S_z) state, any spin): wrong sector or constant?")
+    off = state_deviations(state_check)
+    if off:
+        measured = ", ".join(f"{sym} = {state_check[key]:.6f}" for key, sym in STATE_QUANTITIES
+                             if as_energy(state_check.get(key)) is not None)
+        return "wrong-state", (f"returned state is not the declared one: {'; '.join(off)} "
+                               f"(measured {measured}; tolerance {STATE_TOLERANCE:g})")
+    if variational and reference_ha is not None and energy_ha < reference_ha - BELOW_EXACT_TOLERANCE_HA:
+        return "wrong-state", (f"variational energy {energy_ha:.10f} Eh lies "
+                               f"{error_mha(reference_ha, energy_ha):.6f} mHa below the declared-spin "
+                               f"reference {reference_ha:.10f} Eh but not below the (N, S_z) sector's "
+                               f"lowest state: a state of another spin")
     return "ok", ""
 
 

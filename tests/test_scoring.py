@@ -28,6 +28,7 @@ TABLE = [
     ("timeout", None, None, 1.5936, "timeout"),
     ("invalid", None, None, 1.5936, "invalid"),
     ("below-exact", REF - 0.01, None, 1.5936, "below-exact"),
+    ("wrong-state", REF + 0.0007, None, 1.5936, "wrong-state"),   # within the threshold, still failing
 ]
 
 
@@ -48,6 +49,38 @@ def test_below_exact_status():
     assert run_status(REF - 0.5e-6, REF, variational=True)[0] == "ok"       # within tolerance
     assert run_status(REF - 2e-6, REF, variational=False)[0] == "ok"       # sampled energies may dip
     assert scoring.BELOW_EXACT_TOLERANCE_HA == 1e-6
+
+
+SECTOR = REF - 0.030       # a lower state of another spin in the same (N, S_z) sector
+SINGLET = {"n_electrons": 2.0, "sz": 0.0, "s2": 0.0}
+
+
+def _check(**measured):
+    return {"checked": True, **SINGLET, **measured, "declared": dict(SINGLET)}
+
+
+@pytest.mark.parametrize("energy, variational, check, status, words", [
+    (REF + 0.001, True, _check(), "ok", ""),
+    (SECTOR, True, None, "wrong-state", "below the declared-spin reference"),   # the sector's lowest: other spin
+    (SECTOR - 2e-6, True, None, "below-exact", "below the exact sector energy"),
+    (REF - 0.010, False, None, "ok", ""),                                      # not variational: may dip
+    (REF + 0.0007, False, _check(s2=2.0), "wrong-state", "<S^2> = 2.000000 (declared 0.000000)"),
+    (REF + 0.0007, True, _check(s2=0.99e-4), "ok", ""),                    # inside the 1e-4 tolerance
+    (REF + 0.0007, True, _check(s2=1.01e-4), "wrong-state", "<S^2>"),
+    (REF, True, _check(n_electrons=1.9), "wrong-state", "<N> = 1.900000 (declared 2.000000)"),
+    (REF, True, _check(sz=0.5), "wrong-state", "<S_z> = 0.500000"),
+    (REF, True, {"checked": False, "declared": dict(SINGLET)}, "ok", ""),
+    (REF, True, _check(s2=None), "ok", ""),                                   # S^2 not measurable (tapered)
+])
+def test_result_status(energy, variational, check, status, words):
+    got, message = scoring.result_status(energy, REF, SECTOR, variational, check)
+    assert got == status and words in message
+
+
+def test_wrong_state_fails_the_gate():
+    assert "wrong-state" in scoring.STATUSES and "wrong-state" in scoring.VERDICTS
+    assert scoring.is_failing("wrong-state", allow_inconclusive=True)
+    assert "wrong-state" not in scoring.WORKER_STATUSES and scoring.STATE_TOLERANCE == 1e-4
 
 
 def test_energy_validation():

@@ -15,7 +15,10 @@ MP2 is closed-shell only.
 The primary rung is FCI (no active space) or CASCI (active space).  Its root's
 <S^2> must equal S(S+1) for the case's multiplicity within 1e-6; a root of
 the wrong spin is rejected and the lowest root of the right spin is found with
-a spin penalty.  Beyond ``max_determinants`` the primary rung is skipped with
+a spin penalty.  The primary rung also records ``sector_lowest_ha``, the
+lowest root of its (N, S_z) sector whatever its spin (equal to the energy when
+that root has the declared spin), so that the gate can tell a state of another
+spin (``wrong-state``) from an impossible energy (``below-exact``).  Beyond ``max_determinants`` the primary rung is skipped with
 the reason recorded, not attempted.
 """
 
@@ -34,13 +37,20 @@ from benchsuite.chem.space import (OrbitalSpace, Prepared, case_integrals, prepa
 from benchsuite.registry.case import Basis, Case, PublishedValue
 
 DEFAULT_MAX_DETERMINANTS = 5_000_000
+#: Part of every ladder's cache key; raise it when a rung's meaning or fields change
+#: (2: the primary rung records ``sector_lowest_ha``).
+LADDER_VERSION = 2
 S2_TOLERANCE = 1e-6
 PRIMARY_METHODS = ("fci", "casci")
 
 
 @dataclass
 class Rung:
-    """One rung.  ``status``: ok, skipped (too large, or not applicable), failed, not-converged."""
+    """One rung.  ``status``: ok, skipped (too large, or not applicable), failed, not-converged.
+
+    ``sector_lowest_ha`` (primary rung only): the lowest energy of the (N, S_z) sector over
+    every spin, <= ``energy_ha``.
+    """
 
     method: str
     energy_ha: float | None
@@ -51,6 +61,7 @@ class Rung:
     note: str = ""
     s2: float | None = None
     n_determinants: int | None = None
+    sector_lowest_ha: float | None = None
 
 
 @dataclass
@@ -127,12 +138,14 @@ def exact_in_space(ints: MOIntegrals, multiplicity: int, label: str, method: str
 
     roots = solve(1, False)
     e, s2 = roots[0]
+    sector_lowest = e
     note = ""
     if abs(s2 - target) > S2_TOLERANCE:
         # The lowest root of this M_S has another spin: look among the lowest few roots, then
         # with a spin penalty, and keep the lowest root whose <S^2> is right.
         note = f"lowest root had <S^2> = {s2:.6f}, rejected"
         candidates = solve(min(8, ndet), False) + solve(min(3, ndet), True)
+        sector_lowest = min([sector_lowest] + [c[0] for c in candidates])
         right = [r for r in candidates if abs(r[1] - target) <= S2_TOLERANCE]
         if right:
             e, s2 = min(right)
@@ -142,7 +155,7 @@ def exact_in_space(ints: MOIntegrals, multiplicity: int, label: str, method: str
         note += f"; no root with <S^2> = {target} found, energy withheld"
         e = None
     return Rung(method, e, None, label, time.perf_counter() - t0, status, note,
-                s2=s2, n_determinants=ndet)
+                s2=s2, n_determinants=ndet, sector_lowest_ha=sector_lowest)
 
 
 def _semicanonical_uhf(mf, space: OrbitalSpace):
@@ -255,7 +268,8 @@ def reference_ladder(case: Case, basis: Basis | str | None = None, cache: DiskCa
     """
     prep = prep or prepare(case, basis, scf_kind)
     cache = cache or DiskCache(None)
-    fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep)}
+    fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep),
+              "ladder_version": LADDER_VERSION}
 
     def compute():
         meta = compute_ladder(prep, max_determinants)

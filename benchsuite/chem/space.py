@@ -23,7 +23,7 @@ import numpy as np
 
 from benchsuite.chem.cache import DiskCache
 from benchsuite.chem.integrals import MOIntegrals, build_mo_integrals
-from benchsuite.chem.scf import ScfSummary, build_mole, default_scf_kind, run_scf
+from benchsuite.chem.scf import ORBITALS_VERSION, ScfSummary, build_mole, default_scf_kind, run_scf
 from benchsuite.errors import InputError
 from benchsuite.registry.case import Basis, Case
 
@@ -141,7 +141,7 @@ def cache_fields(case: Case, basis: Basis, space: OrbitalSpace, scf_kind: str) -
         "coords_bohr": np.round(case.coords_bohr(), 10).tolist(),
         "basis": spec, "charge": case.charge, "multiplicity": case.multiplicity,
         "frozen_core": space.n_core, "active_space": [space.n_electrons, space.n_orbitals],
-        "space_kind": space.kind, "scf": scf_kind, "pyscf": pyscf.__version__,
+        "space_kind": space.kind, "scf": scf_kind, "pyscf": pyscf.__version__, "orbitals": ORBITALS_VERSION,
     }
 
 

@@ -46,11 +46,23 @@ def judge_fields(fields: dict, reference_ha: float | None, threshold_mha: float,
                    fields.get("stderr_ha"), settings.confidence, fields.get("converged"), settings.require_converged)
 
 
+def _decided(fields: dict, primary, method_obj) -> dict:
+    """A completed result's status against the declared-spin reference and the (N, S_z) sector's
+    lowest state (:func:`benchsuite.runner.judged_fields`, the same decision as ``execute``)."""
+    from benchsuite.runner import judged_fields
+
+    reference = None if primary is None else primary.energy_ha
+    sector = None if primary is None else getattr(primary, "sector_lowest_ha", None)
+    return judged_fields(fields, reference, sector, bool(getattr(method_obj, "variational", False)))
+
+
 def task_row(run_id: str, task, fields: dict, ladder, plan) -> ResultRow:
-    """A finished task (the worker's ``fields``) as a stored row with its per-task verdict."""
+    """A finished task (the worker's checked ``fields``) as a stored row with its status decided
+    (``ok``, ``below-exact`` or ``wrong-state``) and its per-task verdict."""
     primary = None if ladder is None else ladder.primary
     ref_ok = primary is not None and primary.status == "ok"
     threshold = plan.threshold_for(task.case)
+    fields = _decided(fields, primary if ref_ok else None, plan.methods.get(task.method, (None, None))[0])
     status = fields.get("status", "error")
     energy = fields.get("energy_ha")
     judgement = judge_fields(fields, primary.energy_ha if ref_ok else None, threshold, plan.settings)

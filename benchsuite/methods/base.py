@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import asdict, dataclass, field
-from typing import Any, Protocol, runtime_checkable
+from typing import Any, Callable, Protocol, runtime_checkable
 
 import numpy as np
 
@@ -145,17 +145,35 @@ class MethodResult:
 
 @dataclass(frozen=True)
 class Option:
-    """A typed option.  ``kind`` is one of int, float, bool, str."""
+    """A typed option, validated when it is resolved (before any reference is computed).
+
+    ``kind`` is one of int, float, bool, str.  Bounds apply to int and float values:
+    ``minimum``/``maximum`` inclusive, ``greater_than`` strict (``greater_than=0.0``: positive).
+    ``choices`` lists the allowed values.  ``check(value)`` returns None when the value is
+    acceptable, else a short reason (e.g. "must be a power of two"); it runs last.
+    """
 
     name: str
     kind: type
     default: Any
     help: str = ""
     choices: tuple | None = None
+    minimum: float | None = None
+    maximum: float | None = None
+    greater_than: float | None = None
+    check: Callable[[Any], str | None] | None = field(default=None, compare=False)
 
     def parse(self, method: str, value: Any) -> Any:
-        """Convert a command-line string or a Python value; InputError names method and option."""
-        where = f"option '{self.name}' of method '{method}'"
+        """Convert a command-line string or a Python value and validate it; InputError names
+        method and option."""
+        value = self._convert(method, value)
+        reason = self.problem(value)
+        if reason:
+            raise InputError(f"option '{self.name}' of method '{method}' {reason}, got {value!r}",
+                             field=f"{method}.{self.name}")
+        return value
+
+    def _convert(self, method: str, value: Any) -> Any:
         try:
             if isinstance(value, str) and self.kind is not str:
                 if self.kind is bool:
@@ -170,14 +188,39 @@ class Option:
             if not isinstance(value, self.kind) or (self.kind is not bool and isinstance(value, bool)):
                 raise TypeError(value)
         except (TypeError, ValueError):
-            raise InputError(f"{where} must be {self.kind.__name__}, got {value!r}",
-                             field=f"{method}.{self.name}") from None
-        if self.kind is float and not math.isfinite(value):
-            raise InputError(f"{where} must be finite, got {value!r}", field=f"{method}.{self.name}")
-        if self.choices is not None and value not in self.choices:
-            raise InputError(f"{where} must be one of {list(self.choices)}, got {value!r}",
-                             field=f"{method}.{self.name}")
+            raise InputError(f"option '{self.name}' of method '{method}' must be {self.kind.__name__}, "
+                             f"got {value!r}", field=f"{method}.{self.name}") from None
         return value
+
+    def problem(self, value: Any) -> str | None:
+        """Why ``value`` (already of ``kind``) is not acceptable, or None."""
+        if self.kind is float and not math.isfinite(value):
+            return "must be finite"
+        if self.choices is not None and value not in self.choices:
+            return f"must be one of {list(self.choices)}"
+        if self.minimum is not None and value < self.minimum:
+            return f"must be >= {self.minimum}"
+        if self.maximum is not None and value > self.maximum:
+            return f"must be <= {self.maximum}"
+        if self.greater_than is not None and value <= self.greater_than:
+            return f"must be > {self.greater_than}"
+        if self.check is not None:
+            try:
+                return self.check(value) or None
+            except Exception as exc:  # a plugin's check that raises is a reason, not a crash
+                return f"failed its check ({type(exc).__name__}: {exc})"
+        return None
+
+    def describe(self) -> dict:
+        """The option as plain data for ``benchsuite methods``."""
+        out = {"name": self.name, "type": self.kind.__name__, "default": self.default, "help": self.help}
+        for key in ("choices", "minimum", "maximum", "greater_than"):
+            value = getattr(self, key)
+            if value is not None:
+                out[key] = list(value) if key == "choices" else value
+        if self.check is not None:
+            out["check"] = getattr(self.check, "__doc__", None) or getattr(self.check, "__name__", "custom")
+        return out
 
 
 def resolve_options(method: "Method", given: dict[str, Any]) -> dict[str, Any]:

@@ -35,22 +35,34 @@ class HartreeFockBitstring:
 
 
 class ExactSector:
-    """Lowest eigenvalue of the encoded Pauli sum restricted to the problem's (N, S_z) sector."""
+    """Lowest eigenvalue of the encoded Pauli sum in the problem's (N, S_z) sector and declared spin.
+
+    The root is the lowest with <S^2> = S(S+1) for the problem's multiplicity (the same
+    state the reference ladder's FCI/CASCI keeps), found with a spin penalty
+    (:func:`benchsuite.qubit.sector.sector_eigen`).  On a tapered register where S^2 has no
+    form the spin cannot be targeted: the lowest (N, S_z) root is returned with a note.
+    """
 
     name = "exact-sector"
-    description = "exact diagonalisation of the encoded Hamiltonian in the electron-number/Sz sector"
+    description = "exact diagonalisation of the encoded Hamiltonian in the N/Sz sector, declared spin"
     options = (Option("max_qubits", int, DEFAULT_MAX_QUBITS,
-                      "refuse registers wider than this (unreduced 2 x orbitals)"),)
+                      "refuse registers wider than this (unreduced 2 x orbitals)", minimum=1),)
     variational = True
     stochastic = False
 
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
-        res = sector_eigen(problem.hamiltonian, problem.n_electrons, problem.n_alpha - problem.n_beta,
-                           n_roots=1, max_qubits=options["max_qubits"], keep_vectors=True)
+        args = dict(n_electrons=problem.n_electrons, two_sz=problem.n_alpha - problem.n_beta, n_roots=1,
+                    max_qubits=options["max_qubits"], keep_vectors=True)
+        note = f"lowest root of multiplicity {problem.multiplicity}"
+        try:
+            res = sector_eigen(problem.hamiltonian, multiplicity=problem.multiplicity, **args)
+        except ValueError as exc:
+            res, note = sector_eigen(problem.hamiltonian, **args), f"lowest (N, S_z) root, any spin: {exc}"
         psi = SectorState(res.states, res.vectors[:, 0], problem.n_qubits)
         s2 = None if res.spin_square is None else float(res.spin_square[0])
         return MethodResult(energy_ha=res.ground_ha, converged=True, iterations=0,
-                            metadata={"sector_dimension": res.dimension, "solver": res.solver, "s2": s2},
+                            metadata={"sector_dimension": res.dimension, "solver": res.solver, "s2": s2,
+                                      "root": note},
                             state=psi)
 
 
@@ -99,6 +111,15 @@ def allocate_shots(total: int, sigmas: np.ndarray, how: str) -> np.ndarray:
     return shots
 
 
+def _sampleable(name: str) -> str | None:
+    """a built-in method other than 'sampled'"""
+    from benchsuite.methods.discovery import builtin_names
+
+    if name == "sampled" or name not in builtin_names():
+        return f"must name a built-in method other than 'sampled' ({builtin_names()})"
+    return None
+
+
 class SampledEnergy:
     """Energy of another method's final state from finite measurement samples.
 
@@ -115,11 +136,12 @@ class SampledEnergy:
     name = "sampled"
     description = "shot-sampled energy of another method's final state (qubit-wise-commuting groups)"
     options = (
-        Option("state", str, "exact-sector", "method whose final state is measured"),
-        Option("shots", int, 100_000, "total shots over all groups"),
+        Option("state", str, "exact-sector", "method whose final state is measured (a built-in)",
+               check=lambda name: _sampleable(name)),
+        Option("shots", int, 100_000, "total shots over all groups", minimum=1),
         Option("allocation", str, "uniform", "how shots are split between groups",
                choices=("uniform", "proportional")),
-        Option("max_qubits", int, 18, "refuse wider registers (the state is held densely)"),
+        Option("max_qubits", int, 18, "refuse wider registers (the state is held densely)", minimum=1),
     )
     variational = False
     stochastic = True
@@ -127,8 +149,6 @@ class SampledEnergy:
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
         from benchsuite.methods.discovery import builtin_method
 
-        if options["shots"] < 1:
-            raise ValueError("shots must be positive")
         if problem.n_qubits > options["max_qubits"]:
             raise ValueError(f"{problem.n_qubits} qubits exceed max_qubits={options['max_qubits']}")
         source = builtin_method(options["state"])
@@ -147,7 +167,8 @@ class SampledEnergy:
                             resources=Resources(shots=int(estimate["shots"]),
                                                 n_parameters=prepared.resources.n_parameters),
                             metadata={"state_from": source.name, "state_energy_ha": prepared.energy_ha,
-                                      "groups": estimate["groups"], "allocation": options["allocation"]})
+                                      "groups": estimate["groups"], "allocation": options["allocation"]},
+                            state=prepared.state)
 
 
 def sample_energy(pauli, psi: np.ndarray, n_qubits: int, shots: int, allocation: str, rng) -> dict:

@@ -9,7 +9,10 @@ Plugins
   importable, e.g. on ``PYTHONPATH``).
 
 The target is a class (instantiated with no arguments) or a factory
-function returning a method object.  A plugin that fails to import or breaks
+function returning a method object.  It must say whether it is
+``variational`` and ``stochastic`` (True/False; no default is assumed, since
+these decide how its results are judged), and an entry point's name must
+equal the object's ``name``.  A plugin that fails to import or breaks
 the contract (:func:`contract_problems`) is reported by name with the reason;
 it never stops other methods from loading.
 """
@@ -20,6 +23,8 @@ import importlib
 import importlib.metadata
 import inspect
 from dataclasses import dataclass
+
+import numpy as np
 
 from benchsuite.errors import InputError
 from benchsuite.methods.base import Option
@@ -73,8 +78,10 @@ def contract_problems(obj) -> list[str]:
     if not isinstance(opts, (tuple, list)) or not all(isinstance(o, Option) for o in opts):
         problems.append("'options' must be a tuple of benchsuite.methods.base.Option")
     for attr in ("variational", "stochastic"):
-        if not isinstance(getattr(obj, attr, False), bool):
-            problems.append(f"'{attr}' must be true or false")
+        if not hasattr(obj, attr):
+            problems.append(f"has no '{attr}' attribute (say True or False: it decides how results are judged)")
+        elif not isinstance(getattr(obj, attr), (bool, np.bool_)):
+            problems.append(f"'{attr}' must be True or False, got {getattr(obj, attr)!r}")
     return problems
 
 
@@ -94,8 +101,7 @@ def instantiate(target, origin: str):
     problems = contract_problems(obj)
     if problems:
         return None, f"{origin} breaks the method contract: " + "; ".join(problems)
-    for attr, default in (("description", ""), ("variational", False), ("stochastic", False),
-                          ("options", ())):
+    for attr, default in (("description", ""), ("options", ())):
         if not hasattr(obj, attr):
             try:
                 setattr(obj, attr, default)
@@ -125,6 +131,9 @@ def entry_point_methods() -> tuple[dict, list[PluginFailure]]:
             failures.append(PluginFailure(ep.name, origin, f"import failed: {type(exc).__name__}: {exc}"))
             continue
         obj, reason = instantiate(target, origin)
+        if obj is not None and obj.name != ep.name:
+            obj, reason = None, (f"{origin}: the entry point is named {ep.name!r} but the method's "
+                                 f"'name' is {obj.name!r}; they must agree")
         if obj is None:
             failures.append(PluginFailure(ep.name, origin, reason))
         else:

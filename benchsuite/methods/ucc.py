@@ -493,8 +493,9 @@ def _result(problem: QubitProblem, setup: _Setup, product: ExponentialProduct, f
 
 
 _TOLERANCE = Option("gradient_tolerance", float, 1e-6,
-                    "converged when the Euclidean norm of the energy gradient is below this (Eh)")
-_MAX_ITER = Option("max_iterations", int, 2000, "L-BFGS-B iteration cap (per optimisation)")
+                    "converged when the Euclidean norm of the energy gradient is below this (Eh)",
+                    greater_than=0.0)
+_MAX_ITER = Option("max_iterations", int, 2000, "L-BFGS-B iteration cap (per optimisation)", minimum=1)
 _WARM = Option("warm_start", str, "",
                "starting parameters: comma-separated numbers, or a file holding a JSON list, a JSON "
                "object with 'parameters' (e.g. a saved result) or numbers; overrides 'initial'")
@@ -506,15 +507,6 @@ def _starting_point(name: str, options: dict, product: ExponentialProduct, maker
     if x0 is not None:
         return "warm_start", x0
     return options["initial"], makers[options["initial"]]()
-
-
-def _check_common(name: str, options: dict):
-    if options["gradient_tolerance"] <= 0:
-        raise InputError(f"option 'gradient_tolerance' of method '{name}' must be positive",
-                         field=f"{name}.gradient_tolerance")
-    if options["max_iterations"] < 1:
-        raise InputError(f"option 'max_iterations' of method '{name}' must be at least 1",
-                         field=f"{name}.max_iterations")
 
 
 # -- the methods ---------------------------------------------------------------------------
@@ -536,7 +528,6 @@ class UCCSDVQE:
     stochastic = False
 
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
-        _check_common(self.name, options)
         setup = _setup(problem)
         ints = problem.integrals
         excitations = reference_singles_doubles(ints.n_orbitals, ints.n_alpha, ints.n_beta)
@@ -557,13 +548,13 @@ class UpCCGSDVQE:
     name = "upccgsd-vqe"
     description = "k-UpCCGSD-VQE: k layers of generalised singles and paired doubles, exact gradients"
     options = (
-        Option("k", int, 2, "number of layers (separate parameters)"),
+        Option("k", int, 2, "number of layers (separate parameters)", minimum=1),
         _MAX_ITER,
         _TOLERANCE,
         Option("initial", str, "random", "starting parameters when no warm_start: random "
                "(normal, scale 0.1, seeded by the problem's seed) or zeros", choices=("random", "zeros")),
         Option("starts", int, 1, "independent optimisations (the first from 'initial' or warm_start, the "
-               "others from further seeded random points); the lowest energy is kept"),
+               "others from further seeded random points); the lowest energy is kept", minimum=1),
         Option("spin_complemented", bool, True, "one parameter for the alpha and beta single of an orbital pair"),
         _WARM,
     )
@@ -571,9 +562,6 @@ class UpCCGSDVQE:
     stochastic = False
 
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
-        _check_common(self.name, options)
-        if options["k"] < 1:
-            raise InputError(f"option 'k' of method '{self.name}' must be at least 1", field=f"{self.name}.k")
         setup = _setup(problem)
         n = problem.n_orbitals
         layer, local = upccgsd_layer(n, options["spin_complemented"])
@@ -583,9 +571,6 @@ class UpCCGSDVQE:
             excitations += layer
             index += [per_layer * layer_no + i for i in local]
         product = ExponentialProduct(setup.space, excitations, index, reference=setup.reference)
-        if options["starts"] < 1:
-            raise InputError(f"option 'starts' of method '{self.name}' must be at least 1",
-                             field=f"{self.name}.starts")
         rng = np.random.default_rng(problem.seed)
         start, x0 = _starting_point(self.name, options, product, {
             "random": lambda: rng.normal(scale=RANDOM_SCALE, size=product.n_parameters),
@@ -615,10 +600,12 @@ class AdaptVQE:
     name = "adapt-vqe"
     description = "ADAPT-VQE: grows a product of fermionic excitations by largest energy gradient"
     options = (
-        Option("gradient_threshold", float, 1e-3, "stop when the Euclidean norm of the pool gradients is below this"),
-        Option("max_operators", int, 200, "cap on the number of operators added"),
+        Option("gradient_threshold", float, 1e-3, "stop when the Euclidean norm of the pool gradients is below this",
+               greater_than=0.0),
+        Option("max_operators", int, 200, "cap on the number of operators added", minimum=0),
         _MAX_ITER,
-        Option("gradient_tolerance", float, 1e-6, "tolerance of each re-optimisation (gradient norm, Eh)"),
+        Option("gradient_tolerance", float, 1e-6, "tolerance of each re-optimisation (gradient norm, Eh)",
+               greater_than=0.0),
         Option("pool", str, "gsd", "sd: spin-orbital singles and doubles from the reference; gsd: "
                "generalised spin-orbital singles and doubles", choices=("sd", "gsd")),
     )
@@ -626,10 +613,6 @@ class AdaptVQE:
     stochastic = False
 
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
-        _check_common(self.name, options)
-        if options["gradient_threshold"] <= 0 or options["max_operators"] < 0:
-            raise InputError(f"method '{self.name}' needs gradient_threshold > 0 and max_operators >= 0",
-                             field=f"{self.name}.gradient_threshold")
         setup = _setup(problem)
         ints = problem.integrals
         n = ints.n_orbitals

@@ -29,7 +29,7 @@ from benchsuite.qubit.encodings import (
     majorana_table,
     occupation_masks,
 )
-from benchsuite.qubit.majorana import DROP_TOLERANCE, spin_free_pauli, spin_square_pauli
+from benchsuite.qubit.majorana import DROP_TOLERANCE, drop_small, spin_free_pauli, spin_square_pauli
 from benchsuite.qubit.pauli import (
     MAX_QUBITS,
     PauliSum,
@@ -41,6 +41,9 @@ from benchsuite.qubit.pauli import (
 )
 
 TWO_QUBIT_REDUCTION = "two-qubit-reduction"
+DROP_TOLERANCE_RULE = ("Pauli strings with |c| <= drop_tolerance dropped after merging; drop_tolerance = the SCF "
+                       "energy convergence threshold (1e-10 Eh by default); dropped_one_norm_ha = their summed "
+                       "|c| at the build, a bound on the energy shift")
 Z2_TAPERING = "z2-tapering"
 
 
@@ -154,7 +157,9 @@ class QubitHamiltonian:
     ``n_alpha``/``n_beta`` are the SCF reference's active electrons (the
     reference occupies the lowest ``n_beta`` orbitals doubly and the next
     ``n_alpha - n_beta`` with alpha spin).  ``reductions`` are applied in
-    order to the full register of ``2 * n_orbitals`` qubits.
+    order to the full register of ``2 * n_orbitals`` qubits.  ``tolerance`` is the
+    drop tolerance (hartree) of the build and of every reduction;
+    ``dropped_one_norm_ha`` the summed |c| of the strings the build dropped.
     """
 
     pauli: PauliSum
@@ -166,6 +171,7 @@ class QubitHamiltonian:
     reductions: tuple[Reduction, ...] = ()
     tolerance: float = DROP_TOLERANCE
     notes: tuple[str, ...] = field(default=(), compare=False)
+    dropped_one_norm_ha: float = field(default=0.0, compare=False)
 
     @property
     def n_qubits(self) -> int:
@@ -260,6 +266,8 @@ class QubitHamiltonian:
             "label_format": "sparse, e.g. 'X0 Y1 Z3'; identity in constant_ha",
             "units": "hartree",
             "drop_tolerance": self.tolerance,
+            "drop_tolerance_rule": DROP_TOLERANCE_RULE,
+            "dropped_one_norm_ha": self.dropped_one_norm_ha,
             "reductions": [r.as_dict() for r in self.reductions],
         }
 
@@ -310,9 +318,10 @@ def encode_integrals(mo: MOIntegrals, encoding: str = "jordan-wigner", ordering:
     if n_modes > MAX_QUBITS:
         raise InputError(f"{n_modes} qubits needed; at most {MAX_QUBITS} are supported", field="n_qubits")
     table = majorana_table(encoding, n_modes)
-    pauli = spin_free_pauli(mo.h1_ha, mo.eri_ha, mo.constant_ha, table, ordering, tol=tol)
+    full = spin_free_pauli(mo.h1_ha, mo.eri_ha, mo.constant_ha, table, ordering, tol=0.0)
+    pauli, dropped = drop_small(full, tol)
     return QubitHamiltonian(pauli=pauli, encoding=encoding, ordering=ordering, n_orbitals=mo.n_orbitals,
-                            n_alpha=mo.n_alpha, n_beta=mo.n_beta, tolerance=tol)
+                            n_alpha=mo.n_alpha, n_beta=mo.n_beta, tolerance=tol, dropped_one_norm_ha=dropped)
 
 
 def two_qubit_reduction(ham: QubitHamiltonian) -> QubitHamiltonian:

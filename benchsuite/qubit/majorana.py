@@ -36,11 +36,17 @@ from itertools import product
 
 import numpy as np
 
+from benchsuite.chem.scf import CONV_TOL_HA
 from benchsuite.qubit.encodings import MajoranaTable, mode_indices
 from benchsuite.qubit.pauli import PauliSum, i_power, popcount
 
-#: Default threshold below which merged Pauli coefficients are dropped (hartree).
-DROP_TOLERANCE = 1e-12
+#: Merged Pauli coefficients with |c| <= this (hartree) are dropped.  Rule: the SCF's
+#: energy convergence threshold (chem.scf.CONV_TOL_HA = 1e-10 Eh), the accuracy the
+#: orbitals, hence the integrals, are determined to; a coefficient below it is not a
+#: property of the molecule (N2/STO-3G on unadapted orbitals kept 196 such strings
+#: between 1e-12 and 1e-10 Eh, which hid a Z2 symmetry).  The summed |c| of what is
+#: dropped bounds the energy shift and is recorded (``dropped_one_norm_ha``).
+DROP_TOLERANCE = CONV_TOL_HA
 
 
 def xz_product(x1, z1, e1, x2, z2, e2):
@@ -113,6 +119,17 @@ def spin_free_pauli(h1: np.ndarray, eri: np.ndarray, constant: float, table: Maj
     z = np.concatenate([np.zeros(1, np.uint64), bz, z4])
     c = np.concatenate([[e0], quad_c, quart_c])
     return PauliSum(2 * n, x, z, c, merge=True, tol=tol)
+
+
+def drop_small(pauli: PauliSum, tol: float = DROP_TOLERANCE) -> tuple[PauliSum, float]:
+    """``pauli`` without its non-identity strings of |c| <= ``tol``, and their summed |c| (hartree).
+
+    The identity is always kept.  The summed |c| bounds how far any energy moves.
+    """
+    small = (np.abs(pauli.coeffs) <= tol) & ((pauli.x != 0) | (pauli.z != 0))
+    dropped = float(np.abs(pauli.coeffs[small]).sum())
+    keep = ~small
+    return PauliSum(pauli.n_qubits, pauli.x[keep], pauli.z[keep], pauli.coeffs[keep], merge=False), dropped
 
 
 def ladder_words_pauli(table: MajoranaTable, modes, daggers, coeffs,

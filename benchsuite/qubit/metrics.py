@@ -4,7 +4,8 @@ Definitions (every output names them):
 
 * ``n_terms``: Pauli strings other than the identity.
 * ``one_norm_ha``: lambda = sum_j |c_j| over the non-identity strings
-  (hartree).  The identity's coefficient shifts every energy equally and
+  (hartree), after strings with |c| <= ``drop_tolerance_ha`` were dropped
+  (their summed |c| is ``dropped_one_norm_ha``).  The identity's coefficient shifts every energy equally and
   needs no measurement, so it is excluded (common practice).
 * ``qwc_groups``: number of qubit-wise-commuting measurement groups found by
   a greedy colouring: strings sorted by |c| descending (ties: canonical
@@ -219,6 +220,8 @@ def resource_metrics(ham: QubitHamiltonian, epsilon_ha: float = DEFAULT_EPSILON_
         "n_terms": int(np.count_nonzero((pauli.x != 0) | (pauli.z != 0))),
         "one_norm_ha": pauli.one_norm(),
         "one_norm_definition": "sum of |c| over Pauli strings, identity excluded",
+        "drop_tolerance_ha": ham.tolerance,
+        "dropped_one_norm_ha": ham.dropped_one_norm_ha,
         "qwc_groups": int(groups.max()) + 1 if len(pauli) and groups.max() >= 0 else 0,
         "grouping_method": GROUPING_METHOD,
         "shots": shots.as_dict(),

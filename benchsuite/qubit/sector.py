@@ -441,17 +441,13 @@ def _inverse_columns(encoding: str, n_modes: int) -> np.ndarray:
     return cols
 
 
-def sector_eigen(ham: QubitHamiltonian, n_electrons: int | None = None, two_sz: int | None = None,
-                 n_roots: int = 1, max_qubits: int | None = None, spin: bool = True,
-                 keep_vectors: bool = False) -> SectorResult:
-    """Lowest ``n_roots`` energies of ``ham`` with ``n_electrons`` and 2 S_z = ``two_sz``.
+#: A root whose <S^2> is this close to S(S+1) has the requested spin.
+SPIN_TOLERANCE = 1e-6
+#: First weight (hartree) of the spin penalty lambda (S^2 - S(S+1)); quadrupled while a root has the wrong spin.
+SPIN_PENALTY_HA = 1.0
 
-    Defaults: the reference's N and S_z.  Refuses (InputError) registers
-    wider than ``max_qubits`` (default :data:`DEFAULT_MAX_QUBITS`) before any
-    work; the limit applies to the unreduced register 2 x n_orbitals.
-    ``spin_square`` is None when S^2 does not commute with a tapered symmetry.
-    """
-    check_qubit_limit(ham.n_modes, max_qubits)
+
+def _sector_numbers(ham: QubitHamiltonian, n_electrons, two_sz) -> tuple[int, int]:
     n = ham.n_electrons if n_electrons is None else int(n_electrons)
     tsz = ham.n_alpha - ham.n_beta if two_sz is None else int(two_sz)
     if (n + tsz) % 2 or abs(tsz) > n:
@@ -460,25 +456,111 @@ def sector_eigen(ham: QubitHamiltonian, n_electrons: int | None = None, two_sz: 
     if na > ham.n_orbitals or nb > ham.n_orbitals:
         raise InputError(f"{na} alpha / {nb} beta electrons do not fit in {ham.n_orbitals} orbitals",
                          field="sector")
+    return na, nb
+
+
+def sector_eigen(ham: QubitHamiltonian, n_electrons: int | None = None, two_sz: int | None = None,
+                 n_roots: int = 1, max_qubits: int | None = None, spin: bool = True,
+                 keep_vectors: bool = False, multiplicity: int | None = None) -> SectorResult:
+    """Lowest ``n_roots`` energies of ``ham`` with ``n_electrons`` and 2 S_z = ``two_sz``.
+
+    Defaults: the reference's N and S_z.  Refuses (InputError) registers
+    wider than ``max_qubits`` (default :data:`DEFAULT_MAX_QUBITS`) before any
+    work; the limit applies to the unreduced register 2 x n_orbitals.
+    ``spin_square`` is None when S^2 does not commute with a tapered symmetry.
+
+    ``multiplicity`` (2S + 1, with S >= |S_z|): the lowest roots *of that spin* only,
+    found with the penalty H + lambda (S^2 - S(S+1))^2 (:class:`SpinPenalised`), which moves
+    every state of another spin up and leaves the right-spin ones where they are (S^2
+    commutes with H); lambda starts at :data:`SPIN_PENALTY_HA` and is quadrupled until every
+    root has <S^2> within :data:`SPIN_TOLERANCE` of S(S+1).  (When the plain lowest roots
+    already have that spin they are returned without a penalty.)  Energies are
+    then <H> of those roots.  ValueError if S^2 has no form on a tapered register.
+    """
+    check_qubit_limit(ham.n_modes, max_qubits)
+    na, nb = _sector_numbers(ham, n_electrons, two_sz)
     sector = ProductSector(ham, na, nb)
     if sector.dimension == 0:
         raise InputError(f"the ({na} alpha, {nb} beta) sector is excluded by this Hamiltonian's "
                          "reductions (they fix the reference's symmetry eigenvalues)", field="sector")
     op = sector.operator(ham.pauli)
     guess = sector.product_index((1 << ham.n_alpha) - 1, (1 << ham.n_beta) - 1)
-    energies, vectors, solver = lowest_eigenpairs(op, n_roots, guess, shift=ham.constant_ha)
-    s2 = None
-    if spin:
+    s2_op = None
+    if spin or multiplicity is not None:
         try:
-            s2_op = ham.spin_square()
+            s2_op = sector.operator(ham.spin_square())
         except ValueError:
-            s2_op = None
-        if s2_op is not None:
-            s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), sector.operator(s2_op) @ vectors))
-    return SectorResult(energies_ha=np.asarray(energies), spin_square=s2, n_alpha=na, n_beta=nb,
-                        dimension=sector.dimension, solver=solver,
+            if multiplicity is not None:
+                raise ValueError("S^2 does not commute with a tapered symmetry: the spin cannot be "
+                                 "targeted on this register") from None
+    if multiplicity is None:
+        energies, vectors, solver = lowest_eigenpairs(op, n_roots, guess, shift=ham.constant_ha)
+    else:
+        energies, vectors, solver = _lowest_of_spin(op, s2_op, multiplicity, na - nb, n_roots, guess,
+                                                    ham.constant_ha)
+    s2 = None
+    if s2_op is not None:
+        s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), s2_op @ vectors))
+    return SectorResult(energies_ha=np.asarray(energies), spin_square=s2 if spin or multiplicity else None,
+                        n_alpha=na, n_beta=nb, dimension=sector.dimension, solver=solver,
                         vectors=vectors if keep_vectors else None,
                         states=sector.states if keep_vectors else None)
+
+
+class SpinPenalised:
+    """H + lambda (S^2 - t)^2 on a sector, for the lowest states with <S^2> = t.
+
+    Every state of another spin S' moves up by lambda (S'(S'+1) - t)^2 >= lambda (2S + 2)^2
+    above or below; states of the target spin stay put (S^2 commutes with H).  The
+    ``diagonal`` (Davidson's preconditioner) is H's diagonal plus lambda (diag S^2 - t)^2,
+    an approximation; products and :meth:`toarray` are exact.
+    """
+
+    def __init__(self, op: SectorOperator, s2_op: SectorOperator, target: float, weight: float,
+                 shift: float = 0.0):
+        self.op, self.s2_op, self.target, self.weight, self.shift = op, s2_op, target, weight, shift
+        self.diagonal = op.diagonal - shift + weight * (np.real(s2_op.diagonal) - target) ** 2
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.op.shape
+
+    @property
+    def dtype(self):
+        return np.result_type(self.op.dtype, self.s2_op.dtype)
+
+    def __matmul__(self, v: np.ndarray) -> np.ndarray:
+        w = self.s2_op @ v - self.target * v
+        return self.op @ v - self.shift * v + self.weight * (self.s2_op @ w - self.target * w)
+
+    def shifted(self, shift: float) -> "SpinPenalised":
+        return SpinPenalised(self.op, self.s2_op, self.target, self.weight, self.shift + shift)
+
+    def toarray(self) -> np.ndarray:
+        s2 = self.s2_op.toarray() - self.target * np.eye(self.shape[0])
+        return self.op.toarray() - self.shift * np.eye(self.shape[0]) + self.weight * (s2 @ s2)
+
+
+def _lowest_of_spin(op: SectorOperator, s2_op: SectorOperator, multiplicity: int, two_sz: int, n_roots: int,
+                    guess, shift: float, max_rounds: int = 6):
+    """Lowest ``n_roots`` eigenpairs of ``op`` with <S^2> = S(S+1) (see :func:`sector_eigen`)."""
+    if multiplicity < 1 or multiplicity - 1 < abs(two_sz) or (multiplicity - 1 - two_sz) % 2:
+        raise InputError(f"multiplicity {multiplicity} has no state with 2*Sz = {two_sz}", field="multiplicity")
+    target = 0.25 * (multiplicity - 1) * (multiplicity + 1)
+    energies, vectors, solver = lowest_eigenpairs(op, n_roots, guess, shift=shift)
+    s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), s2_op @ vectors))
+    if np.all(np.abs(s2 - target) <= SPIN_TOLERANCE):     # the plain lowest roots have the spin already
+        return energies, vectors, solver
+    weight = SPIN_PENALTY_HA
+    for _ in range(max_rounds):
+        _, vectors, solver = lowest_eigenpairs(SpinPenalised(op, s2_op, target, weight), n_roots, guess,
+                                               shift=shift)
+        s2 = np.real(np.einsum("ik,ik->k", vectors.conj(), s2_op @ vectors))
+        if np.all(np.abs(s2 - target) <= SPIN_TOLERANCE):
+            energies = np.real(np.einsum("ik,ik->k", vectors.conj(), op @ vectors))
+            return energies, vectors, f"{solver}, spin penalty {weight:g} (S^2 - {target:g})^2 Eh"
+        weight *= 4.0
+    raise RuntimeError(f"no root with <S^2> = {target} found (last <S^2>: {s2}); is the spin in this sector?")
 
 
 def fock_space_lowest(pauli: PauliSum, max_qubits: int = 16) -> float:

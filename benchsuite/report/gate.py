@@ -26,7 +26,8 @@ __all__ = ["FAILING", "is_failing", "task_document", "run_document", "failure_me
 
 
 def task_document(row) -> dict:
-    """The ``solve --format json`` fields plus verdict and threshold."""
+    """The ``solve --format json`` fields plus verdict and threshold; ``state_check`` holds <N>,
+    <S_z>, <S^2> of the returned state (:mod:`benchsuite.methods.statecheck`)."""
     return {"case": row.case, "basis": row.basis, "space": row.space, "encoding": row.encoding,
             "n_qubits": row.n_qubits, "method": row.method, "options": row.options,
             "energy_ha": row.energy_ha, "stderr_ha": row.stderr_ha,
@@ -34,7 +35,8 @@ def task_document(row) -> dict:
             "error_mha": row.error_mha, "status": row.status, "verdict": row.verdict,
             "threshold_mha": row.threshold_mha, "converged": row.converged, "iterations": row.iterations,
             "seconds": row.seconds, "resources": row.resources, "message": row.message,
-            "secondary": row.secondary, "scf": row.scf, "tags": row.tags, "task_key": row.task_key}
+            "secondary": row.secondary, "scf": row.scf, "tags": row.tags, "task_key": row.task_key,
+            "state_check": (row.metadata or {}).get("state_check")}
 
 
 def run_document(run, rows: list, gate: dict) -> dict:

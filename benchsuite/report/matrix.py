@@ -28,7 +28,7 @@ SCALE_EDGES = (0.1, 1.0, 3.0, 10.0, 30.0, 100.0)
 #: verdict -> (label, glyph); a verdict missing here is spelled from its name (:func:`verdict_label`).
 VERDICT_LABELS = {
     "pass": ("PASS", "✓"), "fail": ("FAIL", "✗"), "below-exact": ("BELOW EXACT", "▼"),
-    "wrong-state": ("WRONG STATE", "◇"), "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"),
+    "wrong-state": ("WRONG STATE", "≠"), "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"),
     "timeout": ("TIMEOUT", "⌛"), "invalid": ("INVALID", "⊘"), "unconverged": ("NOT CONVERGED", "↻"),
 }
 REGRESSION_KINDS = ("pass->not-pass", "error-grew", "new-error")

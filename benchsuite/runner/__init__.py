@@ -16,7 +16,14 @@ mixed into the command's own output.  A method task without a time budget
 gets :data:`DEFAULT_TIMEOUT_S` seconds; pass ``math.inf`` for none.
 
 What a worker sends back is JSON, checked in the worker and again in the
-parent (:mod:`benchsuite.runner.contract`).
+parent (:mod:`benchsuite.runner.contract`).  The worker also measures <N>,
+<S_z> and <S^2> of the state the method returned
+(:func:`benchsuite.methods.statecheck.check_state`, into
+``metadata["state_check"]``, overwriting anything the method put there) and
+reports only ``ok``/``error``/``timeout``/``invalid``; whether a completed
+result is ``below-exact`` or ``wrong-state`` is decided in the parent by
+:func:`benchsuite.scoring.result_status` (:func:`judged_fields` here for
+:func:`execute`, :func:`benchsuite.gate.judge.task_row` for a grid).
 """
 
 from __future__ import annotations
@@ -35,10 +42,10 @@ from benchsuite.runner.contract import Breach, bounded_text, short_repr
 from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_S, Capture, InterruptGuard,
                                          Isolation, RunInterrupted, budget, end_worker, enter_isolation,
                                          flush_c_output, kill_group, shutdown_forkserver)
-from benchsuite.scoring import run_status
+from benchsuite.scoring import result_status
 
 __all__ = ["DEFAULT_MAX_MEMORY_MB", "DEFAULT_TIMEOUT_S", "DaskPool", "GridConfig", "Job", "LocalPool", "Outcome",
-           "RunInterrupted", "Task", "execute", "run_grid", "validate_result", "work"]
+           "RunInterrupted", "Task", "execute", "judged_fields", "run_grid", "validate_result", "work"]
 
 _PRELOAD = ["benchsuite.methods.builtin", "benchsuite.methods.ucc", "benchsuite.qubit.sector"]
 
@@ -99,22 +106,43 @@ def unsendable_fields(exc: Exception) -> dict:
                                           "and keep unpicklable state (locks, open files) out of it"}
 
 
-def validate_result(result, method_name: str, exact_ha: float | None, variational: bool) -> dict:
+def validate_result(result, method_name: str, problem: QubitProblem | None = None) -> dict:
     """Turn what a method returned into Outcome fields; contract breaches become ``invalid``.
 
-    Types, ranges and sizes are checked and normalised first
-    (:func:`benchsuite.runner.contract.result_fields`), then the status.
+    Types, ranges and sizes are checked and normalised
+    (:func:`benchsuite.runner.contract.result_fields`); with ``problem``, the returned state is
+    checked (:func:`benchsuite.methods.statecheck.check_state`) into ``metadata["state_check"]``.
+    The status is ``ok`` or ``invalid``: the energy is judged later, in the parent.
     """
+    from benchsuite.methods.statecheck import StateError, check_state
+
     if not isinstance(result, MethodResult):
         return {"status": "invalid",
                 "message": f"{method_name} returned {type(result).__name__} {short_repr(result)}, "
                            "not a MethodResult"}
     try:
         fields = contract.result_fields(result)
+        if problem is not None:
+            try:
+                check = check_state(problem, result.state)
+            except StateError as exc:
+                raise Breach(f"state: {exc}") from None
+            fields["metadata"] = {**fields["metadata"], "state_check": contract.metadata(check)}
     except Breach as exc:
         return {"status": "invalid", "message": f"{method_name} returned {exc}"}
-    status, message = run_status(fields["energy_ha"], exact_ha, variational)
-    return {"status": status, "message": message, **fields}
+    return {"status": "ok", "message": "", **fields}
+
+
+def judged_fields(fields: dict, reference_ha: float | None, sector_ha: float | None,
+                  variational: bool) -> dict:
+    """``fields`` (already checked by the parent) with the status of a completed result decided:
+    ``ok``, ``below-exact`` or ``wrong-state`` (:func:`benchsuite.scoring.result_status`)."""
+    if fields.get("status") != "ok" or fields.get("energy_ha") is None:
+        return fields
+    check = (fields.get("metadata") or {}).get("state_check")
+    status, message = result_status(fields["energy_ha"], reference_ha, sector_ha, variational,
+                                    check if isinstance(check, dict) else None)
+    return {**fields, "status": status, "message": message or fields.get("message", "")}
 
 
 def exception_fields(exc: BaseException) -> dict:
@@ -141,46 +169,52 @@ def _memory_limit_note() -> str:
     return f"(the worker's memory limit is {soft / 2**20:g} MiB: max_memory_mb)"
 
 
-def _run_here(method, problem: QubitProblem, options: dict, exact_ha) -> dict:
+def _run_here(method, problem: QubitProblem, options: dict) -> dict:
     t0 = time.perf_counter()
     try:
         result = method.run(problem, options)
-        fields = validate_result(result, method.name, exact_ha, bool(getattr(method, "variational", False)))
+        fields = validate_result(result, method.name, problem)
     except (Exception, SystemExit) as exc:
         fields = exception_fields(exc)
     fields["seconds"] = time.perf_counter() - t0
     return fields
 
 
-def _direct_work(method, problem, options, exact_ha) -> dict:
-    return _run_here(method, problem, options, exact_ha)
+def _direct_work(method, problem, options) -> dict:
+    return _run_here(method, problem, options)
 
 
 def execute(method, problem: QubitProblem, options: dict | None = None, timeout_s: float | None = None,
-            exact_ha: float | None = None, isolate: bool = True, max_memory_mb: float | None = None) -> Outcome:
+            exact_ha: float | None = None, isolate: bool = True, max_memory_mb: float | None = None,
+            sector_ha: float | None = None) -> Outcome:
     """Run ``method`` on ``problem`` and classify what happened.
 
     ``options`` are validated here (an unknown option is an input error before
-    any work).  ``exact_ha`` is the exact sector energy used for the
-    ``below-exact`` check of variational methods.  ``timeout_s`` and
-    ``max_memory_mb``: ``None`` means :data:`DEFAULT_TIMEOUT_S` and
-    :data:`DEFAULT_MAX_MEMORY_MB`, ``math.inf`` means no limit.
+    any work).  ``exact_ha`` is the declared-spin reference and ``sector_ha`` the
+    lowest (N, S_z) energy of any spin (None: equal to ``exact_ha``), used for the
+    ``below-exact``/``wrong-state`` checks (:func:`judged_fields`, in this process for
+    both paths).  ``timeout_s`` and ``max_memory_mb``: ``None`` means
+    :data:`DEFAULT_TIMEOUT_S` and :data:`DEFAULT_MAX_MEMORY_MB`, ``math.inf`` means no limit.
     """
     opts = resolve_options(method, options or {})
     name = method.name
+    variational = bool(getattr(method, "variational", False))
     if not isolate:
-        return Outcome(method=name, **_run_here(method, problem, opts, exact_ha))
-    try:
-        payload = pickle.dumps(("direct", method, problem, opts, exact_ha))
-    except Exception as exc:
-        return Outcome(method=name, **unsendable_fields(exc))
-    job = Job(name, payload, budget(timeout_s, DEFAULT_TIMEOUT_S), budget(max_memory_mb, DEFAULT_MAX_MEMORY_MB))
-    with InterruptGuard() as guard:
-        pool = LocalPool(1, guard)
+        fields = contract.checked_fields(_run_here(method, problem, opts), needs_energy=True)
+    else:
         try:
-            (_, fields), = pool.run([job])
-        finally:
-            pool.close()
+            payload = pickle.dumps(("direct", method, problem, opts))
+        except Exception as exc:
+            return Outcome(method=name, **unsendable_fields(exc))
+        job = Job(name, payload, budget(timeout_s, DEFAULT_TIMEOUT_S),
+                  budget(max_memory_mb, DEFAULT_MAX_MEMORY_MB))
+        with InterruptGuard() as guard:
+            pool = LocalPool(1, guard)
+            try:
+                (_, fields), = pool.run([job])
+            finally:
+                pool.close()
+    fields = judged_fields(fields, exact_ha, sector_ha, variational)
     return Outcome(method=name, **{k: v for k, v in fields.items() if k in _OUTCOME_FIELDS})
 
 
@@ -242,9 +276,8 @@ def _method_work(task: Task, method_obj, cache_dir, seed, timeout_s, max_determi
 
     prepared = build_problem(task.case, task.basis, task.encoding, cache=DiskCache(cache_dir), seed=seed,
                              time_budget_s=timeout_s, max_determinants=max_determinants)
-    ref = prepared.reference
     opts = resolve_options(method_obj, task.options)
-    fields = _run_here(method_obj, prepared.problem, opts, None if ref is None else ref.energy_ha)
+    fields = _run_here(method_obj, prepared.problem, opts)
     pauli = prepared.problem.hamiltonian.pauli
     groups = qwc_groups(pauli)
     fields["problem"] = {"n_qubits": prepared.problem.n_qubits,

@@ -28,7 +28,7 @@ from dataclasses import fields as dataclass_fields
 import numpy as np
 
 from benchsuite.methods.base import Resources
-from benchsuite.scoring import STATUSES
+from benchsuite.scoring import STATE_QUANTITIES, WORKER_STATUSES
 
 MAX_ABS_ENERGY_HA = 1e6
 MAX_ITERATIONS = 10**9
@@ -229,6 +229,32 @@ def _checked_problem(problem) -> dict:
     return out
 
 
+def _checked_state_check(check) -> dict:
+    """``metadata["state_check"]``: measured and declared <N>, <S_z>, <S^2> finite numbers or null."""
+    if not isinstance(check, dict):
+        raise Breach(f"metadata.state_check = {short_repr(check)}: not a mapping")
+    declared = check.get("declared")
+    if not isinstance(declared, dict):
+        raise Breach("metadata.state_check has no 'declared' values")
+    for key, _ in STATE_QUANTITIES:
+        for where, doc in (("", check), ("declared.", declared)):
+            if doc.get(key) is not None:
+                doc[key] = real(doc[key], f"metadata.state_check.{where}{key}")
+    if check.get("checked") and (check.get("n_electrons") is None or check.get("sz") is None):
+        raise Breach("metadata.state_check is marked checked without <N> and <S_z>")
+    return check
+
+
+def _checked_metadata(meta: dict) -> dict:
+    """Plain bounded metadata; the state check is kept aside so that no size cut can drop it."""
+    rest = dict(meta)
+    check = rest.pop("state_check", None)
+    out = metadata(rest)
+    if check is not None:
+        out["state_check"] = _checked_state_check(plain(check))
+    return out
+
+
 def _optional(value, check):
     return None if value is None else check(value)
 
@@ -243,7 +269,7 @@ _CHECKS = {
     "iterations": lambda v: _optional(v, lambda x: count(x, "iterations", MAX_ITERATIONS)),
     "parameters": parameters,
     "resources": resources,
-    "metadata": lambda v: metadata(v) if isinstance(v, dict) else metadata({"value": v}),
+    "metadata": lambda v: _checked_metadata(v if isinstance(v, dict) else {"value": v}),
     "problem": _checked_problem,
     "cache": lambda v: bounded_text(str(v), 200),
     "primary_status": lambda v: _optional(v, lambda x: bounded_text(str(x), 200)),
@@ -253,14 +279,17 @@ _CHECKS = {
 def checked_fields(raw, needs_energy: bool) -> dict:
     """Re-check a worker's fields; unknown keys are dropped.
 
-    ``needs_energy``: a method job whose status is ``ok`` or ``below-exact``
-    must carry a finite energy.  A bad field makes the task ``invalid``.
+    ``needs_energy``: a method job whose status is ``ok`` must carry a finite
+    energy.  A bad field (including a malformed ``metadata["state_check"]``) makes
+    the task ``invalid``.  A worker cannot claim ``below-exact`` or ``wrong-state``:
+    those are decided by the parent (:func:`benchsuite.scoring.result_status`).
     """
     if not isinstance(raw, dict):
         return {"status": "error", "message": f"worker sent {type(raw).__name__}, not a mapping of fields"}
     status = raw.get("status")
-    if status not in STATUSES:
-        return {"status": "error", "message": f"worker sent status {short_repr(status)}, not one of {STATUSES}"}
+    if status not in WORKER_STATUSES:
+        return {"status": "error",
+                "message": f"worker sent status {short_repr(status)}, not one of {WORKER_STATUSES}"}
     out = {"status": status}
     try:
         for key, check in _CHECKS.items():
@@ -269,7 +298,7 @@ def checked_fields(raw, needs_energy: bool) -> dict:
         if stderr := out.get("stderr_ha"):
             if stderr < 0:
                 raise Breach(f"stderr_ha = {stderr!r}: negative")
-        if needs_energy and status in ("ok", "below-exact") and out.get("energy_ha") is None:
+        if needs_energy and status == "ok" and out.get("energy_ha") is None:
             raise Breach(f"status {status} without an energy")
     except Breach as exc:
         return {"status": "invalid", "seconds": out.get("seconds", 0.0),

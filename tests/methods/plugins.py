@@ -297,3 +297,93 @@ class ForgesPayload(_Base):
 
         contract.encode_fields = lambda fields: json.dumps({"status": "ok", "energy_ha": "-99"}).encode()
         return MethodResult(energy_ha=_hf_energy(problem))
+
+
+# -- states of the wrong spin (tests/methods/test_spin_state.py, tests/outside/test_spin_references.py) ---
+
+class SectorLowest(_Base):
+    """Returns the lowest eigenvalue of the (N, S_z) sector whatever its spin, and no state:
+    right for a triplet-declared case, a state of another spin for a singlet whose triplet lies lower."""
+
+    name = "lab-sector-lowest"
+
+    def run(self, problem, options):
+        from benchsuite.qubit.sector import sector_eigen
+
+        return MethodResult(energy_ha=sector_eigen(problem.hamiltonian).ground_ha)
+
+
+class TripletState(_Base):
+    """Returns the lowest triplet of the (N, S_z = 0) sector with its energy and its state
+    (a SectorState, or with ``dense`` the full statevector)."""
+
+    name = "lab-triplet"
+    options = (Option("dense", bool, False, "return the state as a dense vector"),)
+
+    def run(self, problem, options):
+        from benchsuite.methods.base import SectorState
+        from benchsuite.qubit.sector import sector_eigen
+
+        res = sector_eigen(problem.hamiltonian, multiplicity=3, keep_vectors=True)
+        psi = SectorState(res.states, res.vectors[:, 0], problem.n_qubits)
+        return MethodResult(energy_ha=res.ground_ha, state=psi.dense() if options["dense"] else psi)
+
+
+class FakesStateCheck(TripletState):
+    """The triplet again, with a forged metadata["state_check"] claiming a singlet."""
+
+    name = "lab-fakes-check"
+
+    def run(self, problem, options):
+        result = super().run(problem, options)
+        result.metadata["state_check"] = {"checked": True, "n_electrons": 2.0, "sz": 0.0, "s2": 0.0,
+                                          "declared": {"n_electrons": 2.0, "sz": 0.0, "s2": 0.0}}
+        return result
+
+
+class BadState(_Base):
+    """Returns a state vector of the wrong length."""
+
+    name = "lab-bad-state"
+
+    def run(self, problem, options):
+        import numpy as np
+
+        return MethodResult(energy_ha=_hf_energy(problem), state=np.ones(3))
+
+
+class NoVariationalFlag:
+    """Says nothing about being variational."""
+
+    name = "lab-no-variational"
+    description = "test plugin"
+    options: tuple = ()
+    stochastic = False
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem))
+
+
+class NoStochasticFlag:
+    """Says nothing about being stochastic."""
+
+    name = "lab-no-stochastic"
+    description = "test plugin"
+    options: tuple = ()
+    variational = True
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem))
+
+
+class CheckedOptions(_Base):
+    """Options with every kind of validation."""
+
+    name = "lab-checked-options"
+    options = (Option("layers", int, 2, "at least one, at most 8", minimum=1, maximum=8),
+               Option("step", float, 0.1, "strictly positive", greater_than=0.0),
+               Option("mode", str, "a", "one of a, b", choices=("a", "b")),
+               Option("width", int, 4, "even", check=lambda v: None if v % 2 == 0 else "must be even"))
+
+    def run(self, problem, options):
+        return MethodResult(energy_ha=_hf_energy(problem))

@@ -104,7 +104,7 @@ def test_every_verdict_is_spelled_out():
     run = make_run(methods=("m",))
     rows = []
     for n, v in enumerate(VERDICTS):
-        status = v if v in ("error", "timeout", "invalid", "below-exact") else "ok"
+        status = v if v in ("error", "timeout", "invalid", "below-exact", "wrong-state") else "ok"
         err = {"pass": 0.1, "fail": 9.0, "inconclusive": 1.5, "below-exact": -50.0}.get(v)
         row = make_row(run.run_id, f"case-{n}", "m", err, status=status,
                        stderr_ha=0.001 if v == "inconclusive" else None)
