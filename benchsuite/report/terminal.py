@@ -109,7 +109,7 @@ def _listed(title: str, tasks: list[dict]) -> list[str]:
 
 def render_summary(run, rows, gate: dict) -> str:
     """The terminal summary of ``run`` with final ``rows`` and its decision ``gate`` (a dict)."""
-    lines = [f"run {run.run_id} · {gate['n_tasks']} task(s), {gate['n_scored']} with an error · "
+    lines = [f"run {run.run_id} · {gate['n_tasks']} task(s), {gate['n_scored']} scored · "
              f"pass if |error| <= {run.threshold_mha:.4f} mHa ({run.threshold_source})", "",
              _method_table(rows), ""]
     if gate["worst"] is not None:
