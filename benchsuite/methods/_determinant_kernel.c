@@ -9,6 +9,13 @@
  */
 #include <stdint.h>
 
+/* SHA-256 of this file, passed by the build (setup.py, determinant.py's first-use build): a loaded
+ * library built from another version of the source is refused. */
+#ifndef BS_SOURCE_SHA256
+#define BS_SOURCE_SHA256 "unknown"
+#endif
+const char *bs_source_sha256(void) { return BS_SOURCE_SHA256; }
+
 /* psi_I <- c psi_I + s sg psi_J,  psi_J <- c psi_J - s sg psi_I  for every pair of every factor */
 void bs_forward(double *psi, int64_t nf, const int64_t *off, const int64_t *ii, const int64_t *jj,
                 const double *sg, const double *cs, const double *sn)

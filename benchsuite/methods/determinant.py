@@ -325,30 +325,35 @@ def _compiler() -> str:
     raise FileNotFoundError("no C compiler on the PATH")
 
 
-def _build(cc: str, source: str, target: Path) -> None:
+def source_sha256() -> str:
+    """SHA-256 of the shipped C source; every build embeds it (``bs_source_sha256``, see setup.py)."""
+    return hashlib.sha256(KERNEL_SOURCE.read_bytes()).hexdigest()
+
+
+def _build(cc: str, source: str, target: Path, source_sha: str) -> None:
     with tempfile.TemporaryDirectory(dir=target.parent) as tmp:
         src = Path(tmp) / "kernel.c"
         src.write_text(source)
         out = Path(tmp) / "kernel.so"
-        subprocess.run([cc, "-O2", "-std=c99", "-shared", "-fPIC", "-o", str(out), str(src)],
-                       check=True, capture_output=True, timeout=120)
+        subprocess.run([cc, "-O2", "-std=c99", "-shared", "-fPIC", f'-DBS_SOURCE_SHA256="{source_sha}"',
+                        "-o", str(out), str(src)], check=True, capture_output=True, timeout=120)
         os.replace(out, target)              # atomic: a concurrent build never leaves half a file
 
 
 def _compile_kernel() -> ctypes.CDLL:
     """The second route: compile KERNEL_SOURCE into the per-user cache (once per source and compiler)."""
-    source = KERNEL_SOURCE.read_text()
+    source, sha = KERNEL_SOURCE.read_text(), source_sha256()
     cc = _compiler()
     tag = hashlib.sha256((source + cc + sys.platform + sysconfig.get_platform()).encode()).hexdigest()[:16]
     folder = _kernel_dir()
     folder.mkdir(parents=True, exist_ok=True, mode=0o700)
     target = folder / f"determinant_{tag}.so"
     if not target.exists():
-        _build(cc, source, target)
+        _build(cc, source, target, sha)
     try:
         return ctypes.CDLL(str(target))
     except OSError:                          # damaged cache entry: build it again once
-        _build(cc, source, target)
+        _build(cc, source, target, sha)
         return ctypes.CDLL(str(target))
 
 
@@ -359,6 +364,16 @@ def _bind(lib: ctypes.CDLL) -> ctypes.CDLL:
     lib.bs_forward.argtypes = [ptr, n, ptr, ptr, ptr, ptr, ptr, ptr]
     lib.bs_backward.restype = None
     lib.bs_backward.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr, ptr, ptr]
+    lib.bs_source_sha256.restype = ctypes.c_char_p
+    lib.bs_source_sha256.argtypes = []
+    return lib
+
+
+def _installed_library(path: Path) -> ctypes.CDLL:
+    """The install-time build, if it loads and was built from the shipped source (OSError if not)."""
+    lib = _bind(ctypes.CDLL(str(path)))
+    if lib.bs_source_sha256().decode() != source_sha256():
+        raise OSError("built from another version of _determinant_kernel.c (reinstall to rebuild it)")
     return lib
 
 
@@ -370,11 +385,11 @@ def _load_kernel() -> tuple[ctypes.CDLL, str]:
         reasons.append("not built at install time")
     else:
         try:
-            return _bind(ctypes.CDLL(str(installed))), f"compiled C kernel (installed {installed.name})"
-        except OSError as exc:
-            reasons.append(f"installed {installed.name} does not load: {exc}")
+            return _installed_library(installed), f"compiled C kernel (installed {installed.name})"
+        except (OSError, AttributeError) as exc:      # AttributeError: a symbol is missing
+            reasons.append(f"installed {installed.name} not used: {exc}")
     try:
-        return _bind(_compile_kernel()), "compiled C kernel (built at first use)"
+        return _bind(_compile_kernel()), f"compiled C kernel (built at first use; {'; '.join(reasons)})"
     except Exception as exc:  # no compiler, compiler error, read-only cache, ...
         reasons.append(f"first-use build failed: {type(exc).__name__}: {exc}")
     raise RuntimeError("; ".join(reasons))

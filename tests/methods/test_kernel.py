@@ -10,6 +10,7 @@ agreement with each other to 1e-12 on LiH is tests/methods/test_ucc_dense.py).
 from __future__ import annotations
 
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -199,19 +200,37 @@ def test_unknown_choice_is_refused(fresh):
         kernel_backend()
 
 
-def test_broken_installed_library_falls_back_to_first_use_build(fresh, tmp_path):
-    """An installed file that does not load is reported, and the first-use build takes over."""
-    if det._installed_kernel() is None:
-        try:
-            det._compiler()
-        except FileNotFoundError:
-            pytest.skip("no C compiler here")
-    broken = tmp_path / "_determinant_kernel.so"
-    broken.write_bytes(b"not a shared library")
-    fresh.setattr(det, "_installed_kernel", lambda: broken)
+def _compiler_or_skip() -> str:
+    try:
+        return det._compiler()
+    except FileNotFoundError:
+        pytest.skip("no C compiler here")
+
+
+def _stale_library(tmp_path) -> Path:
+    """A real build of the shipped source that claims another source version."""
+    stale = tmp_path / "_determinant_kernel.so"
+    det._build(_compiler_or_skip(), det.KERNEL_SOURCE.read_text(), stale, "0" * 64)
+    return stale
+
+
+@pytest.mark.parametrize("installed, reason", [
+    ("broken", "not used"), ("stale", "another version of _determinant_kernel.c")])
+def test_unusable_installed_library_falls_back_to_first_use_build(fresh, tmp_path, installed, reason):
+    """An installed file that does not load, or was built from another source, is reported in the
+    note, and the first-use build takes over without a fallback warning."""
+    _compiler_or_skip()
+    if installed == "broken":
+        path = tmp_path / "_determinant_kernel.so"
+        path.write_bytes(b"not a shared library")
+    else:
+        path = _stale_library(tmp_path)
+    fresh.setattr(det, "_installed_kernel", lambda: path)
     fresh.setenv("BENCHSUITE_KERNEL_DIR", str(tmp_path / "cache"))
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         assert kernel_backend() == "c"
-    assert "built at first use" in det.kernel_note()
-    assert list((tmp_path / "cache").glob("determinant_*.so"))
+    note = det.kernel_note()
+    assert "built at first use" in note and reason in note
+    (built,) = (tmp_path / "cache").glob("determinant_*.so")
+    assert det._KERNEL["lib"].bs_source_sha256().decode() == det.source_sha256()
