@@ -519,16 +519,17 @@ def external_plan(rows: list[ExternalRow], settings, suite=None):
 def method_provenance(rows: list[ExternalRow], table: ResultsFile) -> dict:
     """``{method: {"package", "version", "commit", "dirty", "source"}}`` from the file's cells
     (``code`` or ``device`` as the package; versions joined when rows disagree)."""
+    by_method: dict[str, list] = {}
+    for r in rows:
+        by_method.setdefault(r.method, []).append(r.provenance)
+    source = f"external results file {Path(table.path).name} (sha256 {table.sha256})"
     out = {}
-    for method in dict.fromkeys(r.method for r in rows):
-        mine = [r.provenance for r in rows if r.method == method]
-
+    for method, mine in by_method.items():
         def joined(key):
             values = sorted({str(p[key]) for p in mine if key in p})
             return ", ".join(values) if values else None
         out[method] = {"package": joined("code") or joined("device"), "version": joined("method_version"),
-                       "commit": None, "dirty": None,
-                       "source": f"external results file {Path(table.path).name} (sha256 {table.sha256})"}
+                       "commit": None, "dirty": None, "source": source}
     return out
 
 
@@ -592,8 +593,7 @@ def score_table(store, table: ResultsFile, registry, settings, problems: Problem
     final = judged_rows(run_id, rows, problems, plan)
     run = external_record(run_id, plan, rows, table, errors)
     store.begin_run(run)
-    for row in final:
-        store.add_result(row)
+    store.add_results(final)
     ex = Execution(baseline_id=baseline_id, max_increase_mha=max_increase_mha, allow_new=allow_new)
     decision = decide(run_id, final, settings, _comparison(store, ex, run_id, final))
     if errors:
