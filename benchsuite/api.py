@@ -393,7 +393,9 @@ def score_external(path: str | Path, *, fmt: str | None = None, db: str | Path |
     judges its own methods and store it as one run in ``db``; returns the
     :class:`~benchsuite.gate.external.ExternalScore` (``run``, ``rows``, ``decision``, ``errors``).
 
-    ``settings`` (:class:`RunSettings`): threshold override (mHa), confidence, multiple testing.
+    ``settings`` (:class:`RunSettings`): threshold override (mHa), confidence, multiple testing;
+    ``baseline`` a run to compare with, ``max_increase_mha`` the |error| growth (mHa) that counts as a
+    regression; ``report``/``json_path``/``junit`` outputs written from the stored decision.
     A malformed file or option is an InputError and nothing is stored."""
     from benchsuite.chem.cache import DiskCache, default_cache_dir
     from benchsuite.gate.execute import Outputs, write_outputs

@@ -158,3 +158,18 @@ def test_scan_rows_get_curve_statistics_and_plots(run_cli, env, built, token):
            f"non-parallelity {expected:.4f} mHa" in out
     html = (env / "scan.html").read_text()
     assert "h2-scan" in html and "<svg" in html
+
+
+def test_stored_rows_form_the_verified_chain(env, rows, cache_dir):
+    """Rows stored in one transaction (ResultStore.add_results) read back through the hash-chain check,
+    and a second batch cannot replace a stored row."""
+    from dataclasses import replace
+
+    _write_csv(env / "a.csv", rows[:3])
+    score = api.score_external(env / "a.csv", db=env / "r.sqlite", cache_dir=cache_dir)
+    with api.open_store(env / "r.sqlite") as store:
+        stored = store.results(score.run.run_id)                  # verifies the chain and the record
+        assert [r.task_key for r in stored] == sorted(r.task_key for r in score.rows)
+        assert store.chain(score.run.run_id)["rows"] == 3
+        with pytest.raises(ValueError, match="already stored"):
+            store.add_results([replace(stored[0], energy_ha=0.0)])
