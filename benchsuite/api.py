@@ -399,7 +399,7 @@ def score_external(path: str | Path, *, fmt: str | None = None, db: str | Path |
     A malformed file or option is an InputError and nothing is stored."""
     from benchsuite.chem.cache import DiskCache, default_cache_dir
     from benchsuite.gate.execute import Outputs, write_outputs
-    from benchsuite.gate.external import Problems, read_results_file, score_table
+    from benchsuite.gate.external import Problems, checked_table, read_results_file, score_table
     from benchsuite.gate.plan import check_output_path, check_settings
 
     settings = settings or RunSettings()
@@ -412,8 +412,9 @@ def score_external(path: str | Path, *, fmt: str | None = None, db: str | Path |
         raise InputError(f"unknown suite {suite!r}; known: {sorted(registry.suites)}", field="--suite")
     table = read_results_file(path, fmt)
     problems = Problems(DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir()))
-    with open_store(db, create=True) as store:
+    checked = checked_table(table, registry, problems)          # before the database is touched
+    with open_store(db, create=baseline is None) as store:
         base = store.resolve_run_id(baseline) if baseline else None
-        score = score_table(store, table, registry, settings, problems, suite_obj, base, max_increase_mha, allow_new)
+        score = score_table(store, table, checked, settings, problems, suite_obj, base, max_increase_mha, allow_new)
         write_outputs(store, score.run, score.rows, score.decision, outputs, registry)
     return score

@@ -391,8 +391,8 @@ def check_row(number: int, record: dict, registry, problems: Problems) -> tuple[
         return None, RowError(number, "basis", f"{basis_label!r} is not a basis of {case.name} (registry: {known})")
     try:
         problem = problems.get(case, basis, cells["encoding"])
-    except InputError as exc:
-        return None, RowError(number, "encoding", exc.detail)
+    except InputError as exc:            # e.g. more qubits than supported, a reduction that does not apply
+        return None, RowError(number, exc.field if exc.field in ("basis", "encoding") else "encoding", exc.detail)
     return _against_problem(number, record, case, basis, cells, problem)
 
 
@@ -574,20 +574,23 @@ def rejected_reason(errors: list[RowError], table: ResultsFile) -> str:
     return f"{len(errors)} of {len(table.records)} row(s) of {Path(table.path).name} rejected ({shown})"
 
 
-def score_table(store, table: ResultsFile, registry, settings, problems: Problems, suite=None,
+def checked_table(table: ResultsFile, registry, problems: Problems) -> tuple[list[ExternalRow], list[RowError]]:
+    """:func:`check_rows`, refusing a file of which no row can be scored (:class:`InputError`)."""
+    rows, errors = check_rows(table, registry, problems)
+    if not rows:
+        raise InputError("no row could be scored: " + "; ".join(e.text for e in errors[:10]), table.path)
+    return rows, errors
+
+
+def score_table(store, table: ResultsFile, checked: tuple, settings, problems: Problems, suite=None,
                 baseline_id: str | None = None, max_increase_mha: float | None = None,
                 allow_new: bool = False) -> ExternalScore:
-    """Check, judge and store a read results file as one run; decide once.
-
-    Raises :class:`InputError` (nothing stored) when no row can be scored.
-    """
+    """Judge and store a read results file's :func:`checked_table` rows as one run; decide once."""
     from benchsuite.gate.decision import decide
     from benchsuite.gate.execute import Execution, _comparison
     from benchsuite.store.provenance import new_run_id
 
-    rows, errors = check_rows(table, registry, problems)
-    if not rows:
-        raise InputError("no row could be scored: " + "; ".join(e.text for e in errors[:10]), table.path)
+    rows, errors = checked
     plan = external_plan(rows, settings, suite)
     run_id = new_run_id()
     final = judged_rows(run_id, rows, problems, plan)

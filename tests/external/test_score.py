@@ -173,3 +173,51 @@ def test_stored_rows_form_the_verified_chain(env, rows, cache_dir):
         assert store.chain(score.run.run_id)["rows"] == 3
         with pytest.raises(ValueError, match="already stored"):
             store.add_results([replace(stored[0], energy_ha=0.0)])
+
+
+def test_a_file_of_rejected_rows_stores_nothing(run_cli, env, rows):
+    path = _write_csv(env / "none.csv", [{**rows[0], "case": "no-such-case"}, {**rows[1], "energy_ha": "x"}])
+    code, _, err = run_cli("score", str(path), "--db", str(env / "r.sqlite"))
+    assert code == 2 and "no row could be scored" in err and "row 1, column case: unknown case" in err
+    assert "row 2, column energy_ha: 'x' is not a number" in err
+    assert not (env / "r.sqlite").exists()
+
+
+def test_plausibility_names_the_unit_that_fits(built):
+    """The window [E_FCI - 1 Eh, E_HF + 1 Eh] with CODATA 2018 conversions (Tiesinga et al., Rev. Mod.
+    Phys. 93, 025010, 2021): an H2 energy in mHa, kcal/mol or eV, or its correlation energy, is caught."""
+    from benchsuite.constants import HARTREE_EV
+    from benchsuite.gate.external import plausibility
+
+    ladder = built("h2").ladder
+    e_fci, e_hf = ladder.primary.energy_ha, ladder.rung("hf").energy_ha
+    assert plausibility(e_fci + 0.5, ladder) is None and plausibility(e_fci - 0.9, ladder) is None
+    for given, unit in ((1000 * e_fci, "mHa"), (HARTREE_KCAL_MOL * e_fci, "kcal/mol"),
+                        (HARTREE_EV * e_fci, "eV"), (e_fci - e_hf, "a correlation energy")):
+        cause = plausibility(given, ladder)
+        assert cause is not None and f"fits best as {unit}" in cause, (given, cause)
+
+
+def test_hostile_cells_never_crash(built, cache):
+    """Arbitrary cell values give a checked row or a RowError naming a column, never an exception."""
+    from hypothesis import HealthCheck, given, settings
+    from hypothesis import strategies as st
+
+    from benchsuite.gate.external import Problems, RowError, check_row
+
+    registry, problems = api.load_registry(), Problems(cache)
+    good = {"case": "h2", "basis": "sto-3g", "space": built("h2").problem.space, "encoding": JW,
+            "energy_ha": repr(built("h2").reference.energy_ha), "method": "m"}
+    cell = st.one_of(st.none(), st.text(max_size=12), st.floats(allow_nan=True, allow_infinity=True),
+                     st.integers(-10**30, 10**30), st.booleans())
+
+    @settings(max_examples=150, deadline=None, suppress_health_check=list(HealthCheck))
+    @given(st.dictionaries(st.sampled_from(list(good) + ["stderr_ha", "shots", "converged", "variational",
+                                                        "fingerprint", "seconds", "extra"]), cell, max_size=6))
+    def check(changes):
+        row, error = check_row(1, {**good, **changes}, registry, problems)
+        assert (row is None) != (error is None)
+        if error is not None:
+            assert isinstance(error, RowError) and error.column and error.cause
+
+    check()
