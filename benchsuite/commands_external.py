@@ -98,13 +98,15 @@ def run_score(args) -> int:
 
 def render_score(score) -> str:
     """The terminal text of a scored file: the file, rejected rows, curve statistics, the gate summary."""
-    from benchsuite.gate.external import curve_table
+    from benchsuite.gate.external import UNVERIFIED, curve_table, unverified
     from benchsuite.report.terminal import render_summary
 
     t = score.table
     lines = [f"{t.path} ({t.format}, sha256 {t.sha256}): {len(t.records)} row(s), {len(score.rows)} scored, "
              f"{len(score.errors)} rejected, {score.n_unverified} unverified problem(s) (no fingerprint)"]
     lines += [f"  rejected {e.text}" for e in score.errors]
+    lines += [f"  {UNVERIFIED} (no fingerprint): row {r.metadata.get('external_row')}, {r.method} on {r.case} "
+              f"({r.basis})" for r in score.rows if unverified(r)]
     lines += curve_table(score.rows)
     lines.append(render_summary(score.run, score.rows, score.decision.to_dict()))
     return "\n".join(lines)

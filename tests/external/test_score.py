@@ -50,6 +50,7 @@ def test_scored_run_then_report_and_table(run_cli, env, rows, built):
     code, out, err = run_cli("score", str(path), "--db", str(db), "--json", str(doc))
     assert code == 1, err                                     # the variational row lies below exact
     assert "4 scored, 0 rejected, 1 unverified" in out
+    assert f"{UNVERIFIED} (no fingerprint): row 3, lab-vqe on heh-cation (sto-3g)" in out
     run = api.load_run("latest", db)
     by_method_case = {(r.method, r.case): r for r in run.rows}
     assert by_method_case[("lab-vqe-variational", "h2")].verdict == "below-exact"
