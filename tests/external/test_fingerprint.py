@@ -73,3 +73,24 @@ def test_malformed_tokens_are_refused(cache):
             differing_components(bad, fp)
     assert differing_components(fp.token.upper(), fp) == []
     assert differing_components("0" * 64, fp) == ["sha256"]
+
+
+def test_another_scf_solution_changes_only_the_orbitals(cache):
+    """H2/STO-3G has two closed-shell RHF solutions, sigma_g^2 (ground) and sigma_u^2 (a stationary
+    excited determinant, reached with PySCF's maximum-overlap method; common practice).  Same geometry,
+    basis, charge, multiplicity, space and encoding; only the orbitals component differs."""
+    from pyscf import scf
+
+    from benchsuite.methods.fingerprint import component_values, fingerprint_from_parts, orbital_component
+
+    prep = solve_scf(prepare(api.load_case("h2"), "sto-3g"))
+    ground = prep.mf
+    excited = scf.addons.mom_occ(scf.RHF(prep.mol), ground.mo_coeff, np.array([0.0, 2.0]))
+    excited.verbose = 0
+    excited.kernel(ground.make_rdm1(ground.mo_coeff, np.array([0.0, 2.0])))
+    assert excited.converged and excited.e_tot > ground.e_tot + 0.5
+    values = component_values(prep.case, prep.basis, prep.space, Encoding())
+    fp_ground = fingerprint_from_parts(values, orbital_component(prep, cache))
+    sig = orbital_signature(prep.mol, excited.mo_coeff, excited.mo_energy, excited.mo_occ, "rhf")
+    fp_excited = fingerprint_from_parts(values, {"sha256": digest(sig), "summary": {}})
+    assert differing_components(fp_excited.token, fp_ground) == ["orbitals"]
