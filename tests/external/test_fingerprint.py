@@ -25,6 +25,19 @@ def test_stable_across_independent_runs(tmp_path):
     assert differing_components(a.token, b) == [] and differing_components(a.sha256, b) == []
 
 
+def test_stable_in_a_separate_process(tmp_path, cache):
+    """A fresh interpreter with its own empty cache computes the same token (no state carried over)."""
+    import subprocess
+    import sys
+
+    code = ("from benchsuite import api; from benchsuite.chem.cache import DiskCache; "
+            "from benchsuite.methods.fingerprint import problem_fingerprint; "
+            "from benchsuite.methods.problem import Encoding; "
+            f"print(problem_fingerprint(api.load_case('lih'), None, Encoding(), DiskCache({str(tmp_path)!r})).token)")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300, check=True)
+    assert done.stdout.strip() == problem_fingerprint(api.load_case("lih"), None, Encoding(), cache).token
+
+
 def _differ(cache, case_a, case_b, basis_a=None, basis_b=None, enc_a=Encoding(), enc_b=Encoding()):
     a = problem_fingerprint(case_a, basis_a, enc_a, cache)
     b = problem_fingerprint(case_b, basis_b, enc_b, cache)
