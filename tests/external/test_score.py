@@ -72,6 +72,9 @@ def test_scored_run_then_report_and_table(run_cli, env, rows, built):
     assert code == 0 and UNVERIFIED in (env / "r.html").read_text()
     code, out, _ = run_cli("table", "latest", "--db", str(db), "--format", "csv")
     assert code == 0 and "heh-cation" in out and "lab-vqe" in out
+    code, out, _ = run_cli("export", "latest", "--db", str(db), "--format", "json", "--out", str(env / "e.json"))
+    exported = [r for r in json.loads((env / "e.json").read_text())["results"] if r["case"] == "heh-cation"]
+    assert code == 0 and exported[0]["metadata"]["problem_check"]["status"] == "unverified"
 
 
 def test_wrong_fingerprint_basis_and_unit_are_row_errors(run_cli, env, rows, token):
