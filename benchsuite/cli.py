@@ -542,6 +542,8 @@ COMMANDS = {
     "report": (_add_report, _run_report),
     "table": (_add_table, _run_table),
 }
+from benchsuite.commands_external import COMMANDS as _EXTERNAL_COMMANDS  # noqa: E402  (problem, score)
+COMMANDS.update(_EXTERNAL_COMMANDS)
 
 
 def build_parser() -> argparse.ArgumentParser:
