@@ -91,6 +91,7 @@ def test_stretched_n2_ccsd_t_far_from_fci(registry, cache):
     assert abs(gap_mha) > 20.0
 
 
+@pytest.mark.slow   # the ladder of every registry case: ~200 s cold on 2 cores
 def test_every_registry_reference_root_has_the_right_spin(registry, cache):
     """<S^2> of each case's FCI/CASCI root is S(S+1) within 1e-6, over the whole registry's default
     basis; the triplets come out as triplets."""
