@@ -71,8 +71,11 @@ def new_run_record(plan: RunPlan, run_id: str, command: str):
         run_id=run_id, started_at=utc_now(), command=command, suite=plan.suite_name, cases=plan.case_names,
         methods=list(plan.methods), options={m: dict(o) for m, o in plan.options.items()},
         encoding=plan.encoding.label,
-        threshold_mha=s.threshold_mha if s.threshold_mha is not None else DEFAULT_THRESHOLD_MHA,
-        threshold_source="--threshold-mha" if s.threshold_mha is not None else THRESHOLD_SOURCE,
+        threshold_mha=s.threshold_mha if s.threshold_mha is not None else (
+            s.default_threshold_mha if s.default_threshold_mha is not None else DEFAULT_THRESHOLD_MHA),
+        threshold_source="--threshold-mha" if s.threshold_mha is not None else (
+            s.default_threshold_source or THRESHOLD_SOURCE if s.default_threshold_mha is not None
+            else THRESHOLD_SOURCE),
         seed=plan.seed, packages=package_versions(), git=git_state(Path.cwd()),
         plugin_git=plugin_provenance(list(plan.methods), builtin_names=builtin_names()),
         machine=machine_info(), summary={"settings": s.to_dict()})
