@@ -120,7 +120,7 @@ def method_records() -> tuple[list[dict], list[dict]]:
 # -- the problem and its references ---------------------------------------------------
 
 def build_problem(case: str | Case, basis: str | None = None, encoding: str = "jordan-wigner",
-                  ordering: str = "interleaved", taper: bool = False, two_qubit_reduction: bool = False,
+                  ordering: str = "interleaved", taper: bool = False, drop_spin_parity_qubits: bool = False,
                   cache_dir: str | Path | None = None, seed: int = 0,
                   registry: Registry | None = None) -> PreparedProblem:
     """The problem a method under test sees, exactly as the gate builds it.
@@ -128,7 +128,7 @@ def build_problem(case: str | Case, basis: str | None = None, encoding: str = "j
     ``case`` is a name or a :class:`Case`; ``basis`` a label of the case (default its first).
     ``encoding`` is jordan-wigner, bravyi-kitaev or parity; ``ordering`` interleaved
     (mode 2p = orbital p alpha) or blocked; ``taper`` Z2-tapers in the Hartree-Fock sector;
-    ``two_qubit_reduction`` (parity + blocked only).  The reference ladder is computed (or read
+    ``drop_spin_parity_qubits`` (parity + blocked only).  The reference ladder is computed (or read
     from the cache at ``cache_dir``, default ``$BENCHSUITE_CACHE`` or ``.benchsuite/cache``).
     """
     from benchsuite.chem.cache import DiskCache, default_cache_dir
@@ -136,7 +136,7 @@ def build_problem(case: str | Case, basis: str | None = None, encoding: str = "j
 
     if isinstance(case, str):
         case = load_case(case, registry)
-    enc = Encoding(encoding, ordering, taper, two_qubit_reduction).check()
+    enc = Encoding(encoding, ordering, taper, drop_spin_parity_qubits).check()
     cache = DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir())
     return _build(case, case.basis(basis), enc, cache=cache, seed=seed)
 

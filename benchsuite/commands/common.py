@@ -56,7 +56,7 @@ def add_encoding(p: argparse.ArgumentParser) -> None:
                    help="spin-orbital order: interleaved = a0 b0 a1 b1 ..., blocked = all alpha then all beta "
                         "(default interleaved)")
     p.add_argument("--taper", action="store_true", help="Z2-taper in the Hartree-Fock sector")
-    p.add_argument("--two-qubit-reduction", action="store_true",
+    p.add_argument("--drop-spin-parity-qubits", action="store_true",
                    help="parity encoding, blocked ordering only: drop the N_alpha and N parity qubits")
 
 

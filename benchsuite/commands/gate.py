@@ -73,7 +73,7 @@ def run_settings(args):
     from benchsuite.gate.plan import RunSettings
     from benchsuite.methods.problem import Encoding
 
-    enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction)
+    enc = Encoding(args.encoding, args.ordering, args.taper, args.drop_spin_parity_qubits)
     default = args.project_threshold
     return RunSettings(basis=args.basis, threshold_mha=args.threshold_mha, confidence=args.confidence,
                        multiple_testing=args.multiple_testing, allow_inconclusive=args.allow_inconclusive,

@@ -58,7 +58,7 @@ def _add_register(p: argparse.ArgumentParser) -> None:
     p.add_argument("--taper-sector", default="hf", metavar="hf|lowest",
                    help="with --taper: the Hartree-Fock state's Z2 sector (default), or the sector "
                         "holding the lowest (N, S_z) state (found by exact diagonalisation)")
-    p.add_argument("--two-qubit-reduction", action="store_true",
+    p.add_argument("--drop-spin-parity-qubits", action="store_true",
                    help="parity encoding only, blocked ordering: drop the N_alpha and N parity qubits")
 
 
@@ -86,7 +86,7 @@ def run_hamiltonian(args) -> int:
     from benchsuite.qubit.sector import check_qubit_limit
     from benchsuite.qubit.summary import hamiltonian_document
 
-    enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction).check()
+    enc = Encoding(args.encoding, args.ordering, args.taper, args.drop_spin_parity_qubits).check()
     check_options(args)
     case = load_registry(args).case(args.case)
     prep = check_case_register(case, args.basis, enc)

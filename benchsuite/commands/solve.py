@@ -49,7 +49,7 @@ def run_solve(args) -> int:
 
     reg = load_registry(args)
     options = parse_key_values(args.option, "--option")
-    enc = Encoding(args.encoding, args.ordering, args.taper, args.two_qubit_reduction)
+    enc = Encoding(args.encoding, args.ordering, args.taper, args.drop_spin_parity_qubits)
     prepared, outcome = solve(reg.case(args.case), args.method, args.basis, enc, options, args.seed,
                               args.timeout_s, cache_dir(args), args.no_cache, reg)
     record = solve_record(prepared, outcome)

@@ -116,8 +116,9 @@ def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=
         tasks = plan.tasks
     else:
         run = resumed
-        missing = set(store.missing_tasks(run.run_id, [t.key for t in plan.tasks]))
-        tasks = [t for t in plan.tasks if t.key in missing]
+        tasks = stored_keys(plan.tasks, run.encoding)
+        missing = set(store.missing_tasks(run.run_id, [t.key for t in tasks]))
+        tasks = [t for t in tasks if t.key in missing]
     progress = progress_factory(len(tasks)) if progress_factory else None
     try:
         run_tasks(store, run.run_id, plan, tasks, ex, progress)
@@ -135,6 +136,22 @@ def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=
     run = store.get_run(run.run_id)
     write_outputs(store, run, rows, decision, outputs, registry)
     return decision, run, rows
+
+
+def stored_keys(tasks, stored_label: str) -> list:
+    """The tasks keyed as the stored run keyed them: a run stored before the spin-parity option's
+    rename used the old encoding label (``+2qr``) in its task keys; its resumed rows carry the
+    current label but keep the run's keys, so no stored task is run twice."""
+    from dataclasses import replace
+
+    from benchsuite.store.records import task_key
+
+    from benchsuite.qubit.encodings import current_label
+
+    if not tasks or stored_label == tasks[0].encoding.label or current_label(stored_label) != tasks[0].encoding.label:
+        return list(tasks)
+    return [replace(t, key=task_key(t.case.name, t.basis.label, stored_label, t.method, t.options))
+            for t in tasks]
 
 
 def finalise(store, run_id: str, plan: RunPlan) -> list:

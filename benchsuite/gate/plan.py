@@ -169,7 +169,7 @@ def plan_run(registry, suite_name: str | None, case_names: list[str] | None, met
         entries = [(e.case, e.basis) for e in registry.suite_entries(suite_name, settings.basis)]
     else:
         entries = [(e.case, e.basis) for e in registry.named_entries(case_names or [], settings.basis)]
-    encoding = Encoding(**settings.encoding).check()
+    encoding = Encoding.from_fields(settings.encoding).check()
     options = split_method_options(option_items, method_specs)
     methods = {}
     for spec in method_specs:
@@ -221,6 +221,4 @@ def stored_plan_arguments(run) -> dict:
 
 
 def _encoding_from_label(label: str) -> dict:
-    name_part, _, ordering = label.partition("/")
-    name, *extras = name_part.split("+")
-    return asdict(Encoding(name, ordering or "interleaved", "tapered" in extras, "2qr" in extras))
+    return asdict(Encoding.from_label(label))

@@ -11,29 +11,50 @@ from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS, Ladder, reference_l
 from benchsuite.chem.space import prepare
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem
-from benchsuite.qubit.encodings import check_register
-from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, two_qubit_reduction
+from benchsuite.qubit.encodings import DROP_LABEL, LEGACY_DROP_LABEL, check_register
+from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, drop_spin_parity_qubits
 from benchsuite.qubit.pauli import MAX_QUBITS
 from benchsuite.registry.case import Basis, Case
 
 
 @dataclass(frozen=True)
 class Encoding:
-    """How the problem is put on qubits."""
+    """How the problem is put on qubits.
+
+    ``drop_spin_parity_qubits`` (parity encoding, blocked ordering): remove the two qubits holding
+    the N_alpha and N parities (Bravyi, Gambetta, Mezzacapo & Temme, arXiv:1701.08213 (2017)).
+    ``label`` reads ``name[+sp-dropped][+tapered]/ordering``.
+    """
 
     name: str = "jordan-wigner"
     ordering: str = "interleaved"
     taper: bool = False
-    two_qubit_reduction: bool = False
+    drop_spin_parity_qubits: bool = False
 
     def check(self) -> "Encoding":
-        check_register(self.name, self.ordering, self.two_qubit_reduction)
+        check_register(self.name, self.ordering, self.drop_spin_parity_qubits)
         return self
 
     @property
     def label(self) -> str:
-        extra = (["2qr"] if self.two_qubit_reduction else []) + (["tapered"] if self.taper else [])
+        extra = ([DROP_LABEL] if self.drop_spin_parity_qubits else []) + (["tapered"] if self.taper else [])
         return "+".join([self.name] + extra) + f"/{self.ordering}"
+
+    @classmethod
+    def from_label(cls, label: str) -> "Encoding":
+        """The encoding of a stored label (the current form or the one written before the rename)."""
+        name_part, _, ordering = label.partition("/")
+        name, *extras = name_part.split("+")
+        dropped = DROP_LABEL in extras or LEGACY_DROP_LABEL in extras
+        return cls(name, ordering or "interleaved", "tapered" in extras, dropped)
+
+    @classmethod
+    def from_fields(cls, doc: dict) -> "Encoding":
+        """The encoding of stored settings fields (``two_qubit_reduction`` read as the old name)."""
+        doc = dict(doc)
+        if "two_qubit_reduction" in doc:
+            doc["drop_spin_parity_qubits"] = bool(doc.pop("two_qubit_reduction"))
+        return cls(**{k: v for k, v in doc.items() if k in cls.__dataclass_fields__})
 
 
 def encode(ints, enc: Encoding, taper_sector: str = "hf", max_qubits: int | None = None) -> QubitHamiltonian:
@@ -52,8 +73,8 @@ def encode_timed(ints, enc: Encoding, taper_sector: str = "hf", max_qubits: int 
     full = encode_integrals(ints, enc.name, enc.ordering)
     t1 = time.perf_counter()
     ham = full
-    if enc.two_qubit_reduction:
-        ham = two_qubit_reduction(ham)
+    if enc.drop_spin_parity_qubits:
+        ham = drop_spin_parity_qubits(ham)
     if enc.taper:
         ham = taper(ham, taper_sector, max_qubits=max_qubits)
     return full, ham, t1 - t0, time.perf_counter() - t1
