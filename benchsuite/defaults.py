@@ -29,6 +29,9 @@ from pathlib import Path
 
 from benchsuite.errors import InputError
 
+#: The suite the pytest plugin parametrises over when neither --bs-suite nor --bs-case is given.
+DEFAULT_SUITE = "smoke"
+
 #: key -> (environment variable, kind) where kind is "path", "int" or "float".
 KEYS: dict[str, tuple[str, str]] = {
     "db": ("BENCHSUITE_DB", "path"),
