@@ -150,3 +150,12 @@ def test_the_checks_see_real_edges():
     assert LAYERS["gate"] > LAYERS["report"] and LAYERS["qubit"] > LAYERS["chem"]
     graph = _graph()
     assert "benchsuite.store.records" in graph["benchsuite.gate.plan"]      # the graph sees real edges
+
+
+def test_cli_stays_a_thin_layer():
+    """cli.py parses, applies defaults and maps errors to exit codes; the commands live in commands/."""
+    lines = (PACKAGE / "cli.py").read_text(encoding="utf-8").count("\n")
+    assert lines < 250, lines
+    heavy = {name for name, _ in _imports(PACKAGE / "cli.py")} & {
+        "benchsuite.gate", "benchsuite.runner", "benchsuite.store", "benchsuite.chem", "benchsuite.methods"}
+    assert heavy == set()
