@@ -38,10 +38,11 @@ from benchsuite.registry.case import Case
 from benchsuite.registry.registry import SuiteEntry
 from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, Judgement
 
-__all__ = ["Assessment", "Encoding", "Judgement", "PreparedProblem", "References", "StoredRun", "assess",
-           "build_problem", "compare", "judge", "list_runs", "load_case", "load_registry", "load_run",
-           "load_suite", "open_store", "references", "run_methods", "select", "DEFAULT_THRESHOLD_MHA",
-           "case_records", "export_run", "method_records", "reference_ladders", "solve"]
+__all__ = ["Assessment", "Encoding", "ExportedProblem", "Judgement", "PreparedProblem", "References", "StoredRun",
+           "assess", "build_problem", "case_records", "compare", "export_problem", "export_run", "judge",
+           "list_runs", "load_case", "load_registry", "load_run", "load_suite", "method_records", "open_store",
+           "reference_ladders", "references", "run_methods", "score_external", "select", "solve",
+           "DEFAULT_THRESHOLD_MHA"]
 
 _REGISTRY: Registry | None = None
 
@@ -450,3 +451,80 @@ def compare(base: str, new: str = "latest", db: str | Path | None = None, max_in
         b, n = store.resolve_run_id(base), store.resolve_run_id(new)
         return compare_runs(store.get_run(b), store.results(b), store.get_run(n), store.results(n), limit,
                             allow_new)
+
+
+# -- energies computed elsewhere -------------------------------------------------------
+
+@dataclass(frozen=True)
+class ExportedProblem:
+    """A written problem export: the :class:`~benchsuite.methods.export.ProblemExport` (text, format,
+    fingerprint, sidecar) and the paths written (the file, then its fingerprint sidecar if any)."""
+
+    export: Any
+    paths: list
+
+
+def export_problem(case: str | Case, basis: str | None = None, *, encoding: str = "jordan-wigner",
+                   ordering: str = "interleaved", taper: bool = False, drop_spin_parity_qubits: bool = False,
+                   fmt: str = "pauli-json", path: str | Path | None = None, cache_dir: str | Path | None = None,
+                   registry: Registry | None = None) -> ExportedProblem:
+    """The exact problem a method sees as ``fcidump``, ``pauli-json`` or ``openfermion`` text, with its
+    fingerprint (:mod:`benchsuite.methods.fingerprint`); written to ``path`` when given (atomically;
+    ``FILE.fingerprint.json`` beside the non-JSON formats; an ``openfermion`` file must end in ``.data``)."""
+    from benchsuite.chem.cache import DiskCache, default_cache_dir
+    from benchsuite.gate.external import write_problem_export
+    from benchsuite.gate.plan import check_output_path
+    from benchsuite.methods.export import FORMATS
+    from benchsuite.methods.export import export_problem as _export
+    from benchsuite.methods.fingerprint import problem_fingerprint
+
+    if fmt not in FORMATS:
+        raise InputError(f"unknown format {fmt!r}; one of {list(FORMATS)}", field="--format")
+    if path is not None:
+        check_output_path(path, "--out")
+        if fmt == "openfermion" and not str(path).endswith(".data"):
+            raise InputError("an openfermion file must end in .data (OpenFermion's load_operator appends it)",
+                             path, "--out")
+    case_obj = load_case(case, registry) if isinstance(case, str) else case
+    prepared = build_problem(case_obj, basis, encoding, ordering, taper, drop_spin_parity_qubits, cache_dir,
+                             registry=registry)
+    cache = DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir())
+    fp = problem_fingerprint(case_obj, case_obj.basis(basis), prepared.encoding, cache)
+    export = _export(prepared, fp, fmt)
+    return ExportedProblem(export, [] if path is None else write_problem_export(export, Path(path)))
+
+
+def score_external(path: str | Path, *, fmt: str | None = None, db: str | Path | None = None,
+                   settings: RunSettings | None = None, suite: str | None = None, baseline: str | None = None,
+                   max_increase_mha: float | None = None, allow_new: bool = False, report: str | Path | None = None,
+                   json_path: str | Path | None = None, junit: str | Path | None = None,
+                   case_dirs: list = (), case_files: list = (), cache_dir: str | Path | None = None):
+    """Judge a results file (CSV, JSON, Parquet; schema in :mod:`benchsuite.gate.external`) as the gate
+    judges its own methods and store it as one run in ``db``; returns the
+    :class:`~benchsuite.gate.external.ExternalScore` (``run``, ``rows``, ``decision``, ``errors``).
+
+    ``settings`` (:class:`RunSettings`): threshold override (mHa), confidence, multiple testing;
+    ``baseline`` a run to compare with, ``max_increase_mha`` the |error| growth (mHa) that counts as a
+    regression; ``report``/``json_path``/``junit`` outputs written from the stored decision.
+    A malformed file or option is an InputError and nothing is stored."""
+    from benchsuite.chem.cache import DiskCache, default_cache_dir
+    from benchsuite.gate.execute import Outputs, write_outputs
+    from benchsuite.gate.external import Problems, checked_table, read_results_file, score_table
+    from benchsuite.gate.plan import check_output_path, check_settings
+
+    settings = settings or RunSettings()
+    check_settings(settings, 0, None)
+    outputs = Outputs(json=check_output_path(json_path, "--json"), junit=check_output_path(junit, "--junit"),
+                      report=check_output_path(report, "--report"))
+    registry = load_registry(case_dirs, case_files)
+    suite_obj = registry.suites.get(suite) if suite else None
+    if suite and suite_obj is None:
+        raise InputError(f"unknown suite {suite!r}; known: {sorted(registry.suites)}", field="--suite")
+    table = read_results_file(path, fmt)
+    problems = Problems(DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir()))
+    checked = checked_table(table, registry, problems)          # before the database is touched
+    with open_store(db, create=baseline is None) as store:
+        base = store.resolve_run_id(baseline) if baseline else None
+        score = score_table(store, table, checked, settings, problems, suite_obj, base, max_increase_mha, allow_new)
+        write_outputs(store, score.run, score.rows, score.decision, outputs, registry)
+    return score

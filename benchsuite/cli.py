@@ -21,6 +21,7 @@ import argparse
 import sys
 
 from benchsuite.commands import gate, hamiltonian, inspect, outputs, solve
+from benchsuite.commands_external import COMMANDS as EXTERNAL_COMMANDS
 from benchsuite.errors import InputError
 
 COMMANDS = {
@@ -36,6 +37,7 @@ COMMANDS = {
     "report": (outputs.add_report, outputs.run_report),
     "table": (outputs.add_table, outputs.run_table),
 }
+COMMANDS.update(EXTERNAL_COMMANDS)         # problem, score: energies computed elsewhere
 
 #: argument attribute -> key of :data:`benchsuite.defaults.KEYS` filled in when not given.
 DEFAULTED = {"db": "db", "cache_dir": "cache_dir", "workers": "workers", "timeout_s": "timeout_s",

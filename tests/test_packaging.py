@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import shutil
 import subprocess
 import sys
 import sysconfig
@@ -39,11 +40,12 @@ def test_wheel_in_a_fresh_environment(tmp_path):
     py = venv / "bin" / "python"
     site = _run([str(py), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"]).stdout.strip()
     Path(site, "borrowed-dependencies.pth").write_text(sysconfig.get_paths()["purelib"] + "\n")
-    _run([str(py), "-m", "pip", "install", "-q", "--no-deps", str(wheel)])
-    outside = tmp_path / "elsewhere"
-    outside.mkdir()
     env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "BENCHSUITE_REFERENCE_DATA")}
     env["BENCHSUITE_CACHE"] = str(tmp_path / "cache")
+    # without $PYTHONPATH: a checkout on it (with the egg-info the build left) would count as installed
+    _run([str(py), "-m", "pip", "install", "-q", "--no-deps", str(wheel)], env=env)
+    outside = tmp_path / "elsewhere"
+    outside.mkdir()
     where = _run([str(py), "-c", "import benchsuite, benchsuite.registry.registry as r; "
                   "print(benchsuite.__file__); print(r.builtin_data_dir())"], cwd=outside, env=env).stdout.split()
     assert all(p.startswith(site) for p in where), where           # code and data from the wheel
@@ -53,3 +55,9 @@ def test_wheel_in_a_fresh_environment(tmp_path):
     solved = json.loads(_run([str(venv / "bin" / "benchsuite"), "solve", "h2", "--method", "exact-sector",
                               "--format", "json"], cwd=outside, env=env).stdout)
     assert solved["status"] == "ok" and abs(solved["error_mha"]) < 1e-6
+    if shutil.which("cc") or shutil.which("gcc"):     # setup.py compiled the determinant kernel into the wheel
+        env["BENCHSUITE_KERNEL_DIR"] = str(tmp_path / "no-first-use-builds")
+        note = _run([str(py), "-c", "from benchsuite.methods.determinant import kernel_note; "
+                     "print(kernel_note())"], cwd=outside, env=env).stdout
+        assert "installed _determinant_kernel" in note, note
+        assert not (tmp_path / "no-first-use-builds").exists()

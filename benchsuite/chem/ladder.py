@@ -39,7 +39,7 @@ from benchsuite.registry.case import Basis, Case, PublishedValue
 DEFAULT_MAX_DETERMINANTS = 5_000_000
 #: Part of every ladder's cache key; raise it when a rung's meaning or fields change
 #: (2: the primary rung records ``sector_lowest_ha``).
-LADDER_VERSION = 2
+LADDER_VERSION = 3
 S2_TOLERANCE = 1e-6
 PRIMARY_METHODS = ("fci", "casci")
 
@@ -230,6 +230,17 @@ def cc_rungs(mf, space: OrbitalSpace, e_hf: float, tag: str = "") -> list[Rung]:
 
 # -- the ladder -----------------------------------------------------------------
 
+def _finite_or_failed(rung: Rung) -> Rung:
+    """A rung whose energy came out NaN or infinite (MP2 with a zero orbital-energy gap, for one)
+    is ``failed`` with no energy, never ``ok``."""
+    values = (rung.energy_ha, rung.correlation_ha)
+    if rung.status != "ok" or all(v is None or np.isfinite(v) for v in values):
+        return rung
+    note = "non-finite energy (a zero orbital-energy denominator?)" + (f"; {rung.note}" if rung.note else "")
+    return Rung(rung.method, None, None, rung.space, rung.seconds, "failed", note, rung.s2,
+                rung.n_determinants, rung.sector_lowest_ha)
+
+
 def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> dict:
     """Run every rung (no cache); returns the JSON-ready metadata."""
     solve_scf(prep)
@@ -249,6 +260,7 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
                    usum.seconds, "ok" if usum.trustworthy else "not-converged",
                    f"<S^2> = {usum.s2:.4f}; correlation column relative to {scf_summary.method.upper()}")
         rungs += [uhf, *cc_rungs(umf, space, usum.energy_ha, tag="u")]
+    rungs = [_finite_or_failed(r) for r in rungs]
     flags = list(scf_summary.flags)
     flags += [f"{r.method}: {r.note}" for r in rungs if r.status in ("failed", "not-converged") and r.note
               and r.method != "hf"]

@@ -34,7 +34,8 @@ def _add_common(p: argparse.ArgumentParser) -> None:
 def add_report_arguments(p: argparse.ArgumentParser) -> None:
     _add_common(p)
     p.add_argument("--out", type=Path, required=True, metavar="FILE.html", help="the HTML file to write")
-    p.add_argument("--title", default=None, help="page title (default 'benchsuite report: run RUN_ID')")
+    p.add_argument("--title", default=None, help="page title (default: the methods and the suite or cases, e.g. 'exact-sector and "
+                        "tallowick on the smoke suite')")
 
 
 def add_table_arguments(p: argparse.ArgumentParser) -> None:

@@ -5,7 +5,8 @@ decision as a plain dict (``benchsuite.gate.decision.GateDecision.to_dict``),
 never from live chemistry objects, so they always agree with the exit code.
 
 JUnit: one ``<testsuite>`` per method, one ``<testcase>`` per task (name
-``method: case (basis)``); failing verdicts (:func:`benchsuite.scoring.is_failing`)
+:func:`benchsuite.report.naming.task_label`, ``h2 / STO-3G / jordan-wigner · exact-sector``, with the
+encoding's ordering and reductions when the method ran under several); failing verdicts (:func:`benchsuite.scoring.is_failing`)
 become ``<failure>``, error/timeout ``<error>``, an allowed inconclusive
 ``<skipped>``; the message carries both energies and the error in mHa.  A
 ``baseline`` suite holds one failing testcase per regression and per
@@ -18,6 +19,7 @@ from __future__ import annotations
 import xml.etree.ElementTree as ET
 from dataclasses import asdict
 
+from benchsuite.report.naming import task_label
 from benchsuite.scoring import FAILING, is_failing
 
 __all__ = ["FAILING", "is_failing", "task_document", "run_document", "failure_message", "junit_xml"]
@@ -64,8 +66,10 @@ def junit_xml(run, rows: list, gate: dict) -> bytes:
     for method, items in by_method.items():
         suite = ET.SubElement(root, "testsuite", name=method, tests=str(len(items)))
         tally = {"failures": 0, "errors": 0, "skipped": 0}
+        several = len({r.encoding for r in items}) > 1
         for r in items:
-            case = ET.SubElement(suite, "testcase", name=f"{method}: {r.case} ({r.basis})", classname=method,
+            name = task_label(r.case, r.basis, r.encoding, method, full_encoding=several)
+            case = ET.SubElement(suite, "testcase", name=name, classname=method,
                                  time=f"{r.seconds:.3f}")
             _task_outcome(case, r, allow, tally)
         for key, n in tally.items():
@@ -95,7 +99,7 @@ def _baseline_suite(root, baseline: dict) -> None:
     suite = ET.SubElement(root, "testsuite", name=f"baseline {baseline['base_id']}")
     n = 0
     for c in baseline["changes"]:
-        label = f"{c['method']}: {c['case']} ({c['basis']}, {c['encoding']})"
+        label = task_label(c["case"], c["basis"], c["encoding"], c["method"], full_encoding=True)
         case = ET.SubElement(suite, "testcase", name=label, classname="baseline")
         config = "; ".join(c["config"])
         text = f"{c['kind']}: {c['before']} -> {c['after']} {c['detail']}" + (

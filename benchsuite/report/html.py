@@ -4,23 +4,26 @@ Three stages, each testable on its own:
 
 1. **collect** -- :func:`collect_report` reads the run record and its result
    rows from the store (and the bibliography from the registry) into plain
-   dataclasses, :class:`ReportData`: the headline, one table per method, the
-   heat map matrix, the scans, the reference ladders, resources, provenance
-   and bibliography.  :func:`build_report` does the same from records already
+   dataclasses, :class:`ReportData`: the gate decision, the accuracy matrix
+   (:mod:`benchsuite.report.matrix`), the scans, one table per method (worst
+   first), the reference ladders, resources, provenance and bibliography.  :func:`build_report` does the same from records already
    in hand.
 2. **compare** -- done while collecting, from stored numbers only: gate
    verdict and counts, :func:`benchsuite.scoring.method_statistics` per
    method, :func:`benchsuite.scoring.curve_statistics` per scan and method,
-   each rung's deviation from the primary reference, the heat map band of
-   every error relative to its threshold.
+   each rung's deviation from the primary reference, every error on the
+   accuracy scale (units of its threshold).
 3. **render** -- :func:`render_html` turns a :class:`ReportData` into one
    self-contained page: jinja2 with autoescape, CSS and a small vanilla
    script inline, plots as inline SVG (:mod:`benchsuite.report.plots`), a
    Content-Security-Policy that forbids every fetch, no external URL anywhere
    outside the bibliography's plain text.
 
-Verdicts are always spelled out (``PASS``, ``FAIL``, ...) with a symbol;
-colour only repeats what the text says.  Units: Eh for energies, mHa for
+Tasks are named as :mod:`benchsuite.report.naming` names them (molecule
+formula, case, basis as published, encoding, method).  Verdicts are always
+spelled out (``PASS``, ``FAIL``, ...) with a glyph; colour only repeats what
+the text says.  Sections with nothing to show (no scan, no baseline, no
+resources) are left out.  Units: Eh for energies, mHa for
 errors, thresholds and sigma, s for times.  No PySCF, no OpenFermion.
 """
 
@@ -33,18 +36,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from benchsuite.report.gate import is_failing
+from benchsuite.report.matrix import (SCALE_EDGES, VERDICT_LABELS, AccuracyMatrix, build_matrix, geometry_label,
+                                      length_unit, verdict_label)
+from benchsuite.report.naming import basis_label, encoding_label, molecule_of, task_label
 from benchsuite.report.tables import format_number, is_number, results_hash, row_citations
 from benchsuite.scoring import VERDICTS, CurveStatistics, MethodStatistics, curve_statistics, method_statistics
 
 TEMPLATE_DIR = Path(__file__).with_name("templates")
 
-#: verdict -> (label, symbol); the label is what a reader sees, the symbol a reminder.
-VERDICT_LABELS = {
-    "pass": ("PASS", "✓"), "fail": ("FAIL", "✗"), "below-exact": ("BELOW EXACT", "▼"),
-    "inconclusive": ("INCONCLUSIVE", "?"), "error": ("ERROR", "!"), "timeout": ("TIMEOUT", "⌛"),
-    "invalid": ("INVALID", "⊘"), "unconverged": ("NOT CONVERGED", "↻"),
-    "wrong-state": ("WRONG STATE", "≠"),
-}
+__all__ = ["VERDICT_LABELS", "verdict_label", "build_report", "collect_report", "render_html", "write_report"]
 #: Rungs in ladder order; any other rung (UHF-based ones) follows, the primary last.
 RUNG_ORDER = ("hf", "mp2", "ccsd", "ccsd(t)")
 PRIMARY_RUNGS = ("fci", "casci")
@@ -80,6 +80,19 @@ class TaskRow:
     sources: list[str] = field(default_factory=list)
     converged: bool | None = None
     captured_output: str = ""       # what the method's worker printed (bounded by the store), shown escaped
+    anchor: str = ""                # the row's id (the accuracy matrix links to it)
+    label: str = ""                 # task_label: "h2 / STO-3G / jordan-wigner · exact-sector"
+    molecule_html: str = ""         # formula with charge and state as escaped HTML, "" without a registry
+    geometry: str = ""              # "h2" or "h2-scan, r = 0.7 Å"
+    basis_label: str = ""           # the basis as published
+    encoding_label: str = ""
+
+    @property
+    def ratio(self) -> float | None:
+        """|error| in units of the task's threshold."""
+        if self.error_mha is None or not self.threshold_mha:
+            return None
+        return abs(self.error_mha) / self.threshold_mha
 
 
 @dataclass
@@ -107,28 +120,6 @@ class MethodTable:
 
 
 @dataclass
-class HeatCell:
-    error_mha: float | None
-    verdict: str
-    band: str
-
-
-@dataclass
-class HeatRow:
-    label: str
-    case: str
-    basis: str
-    encoding: str
-    cells: list[HeatCell | None]
-
-
-@dataclass
-class HeatMap:
-    methods: list[str]
-    rows: list[HeatRow]
-
-
-@dataclass
 class ScanSeries:
     method: str
     lengths: list[float]
@@ -150,6 +141,9 @@ class ScanData:
     series: list[ScanSeries]
     threshold_mha: float
     svg: str = ""
+    length_unit: str = "Å"
+    basis_label: str = ""
+    title: str = ""
 
 
 @dataclass
@@ -251,7 +245,7 @@ class ReportData:
     threshold_source: str
     summaries: list[MethodSummary]
     tables: list[MethodTable]
-    heatmap: HeatMap
+    matrix: AccuracyMatrix
     scans: list[ScanData]
     ladders: list[Ladder]
     resources: list[ResourceRow]
@@ -260,6 +254,8 @@ class ReportData:
     tags: list[str]
     verdicts: list[str]
     ladder_rungs: list[str] = field(default_factory=list)
+    scale_edges: tuple = SCALE_EDGES
+    within_label: str = "within threshold"
 
 
 # -- collect and compare -----------------------------------------------------------------
@@ -275,14 +271,20 @@ def _scored(row) -> float | None:
 
 
 def _counts(verdicts) -> dict[str, int]:
+    """Verdict -> count, in scoring's order, then any verdict scoring does not list yet."""
     verdicts = list(verdicts)
-    return {v: verdicts.count(v) for v in VERDICTS if v in verdicts}
+    order = list(VERDICTS) + [v for v in dict.fromkeys(verdicts) if v not in VERDICTS]
+    return {v: verdicts.count(v) for v in order if v in verdicts}
 
 
-def build_report(run, rows, registry=None, title: str | None = None) -> ReportData:
-    """:class:`ReportData` from a :class:`RunRecord` and its :class:`ResultRow` list."""
-    rows = sorted(rows, key=lambda r: (r.method, r.scan_parent or r.case, r.scan_length or 0.0, r.case,
-                                       r.basis, r.encoding, r.task_key))
+def worst_first(row) -> tuple:
+    """Table order: failing tasks first; then by |error| descending (as shown, to 1e-4 mHa), tasks
+    without an error first; ties in chemical order (molecule, bond length, basis)."""
+    return (not is_failing(row.verdict), row.error_mha is not None, -round(abs(row.error_mha or 0.0), 4),
+            row.scan_parent or row.case, row.scan_length or 0.0, row.case, row.basis)
+
+
+def _method_parts(run, rows, registry, anchors):
     method_order = list(dict.fromkeys(list(run.methods) + [r.method for r in rows]))
     by_method = {m: [r for r in rows if r.method == m] for m in method_order}
     by_method = {m: items for m, items in by_method.items() if items}
@@ -294,21 +296,47 @@ def build_report(run, rows, registry=None, title: str | None = None) -> ReportDa
             n_failing=sum(is_failing(r.verdict) for r in items),
             stochastic=any(r.stderr_ha is not None for r in items), worst=_worst(items))
         summaries.append(summary)
-        tables.append(MethodTable(summary=summary, rows=[_task_row(r, registry) for r in items],
+        tables.append(MethodTable(summary=summary,
+                                  rows=[_task_row(r, registry, anchors[r.task_key])
+                                        for r in sorted(items, key=worst_first)],
                                   show_sigma=summary.stochastic,
                                   show_threshold=any(abs(r.threshold_mha - run.threshold_mha) > 1e-12
                                                      for r in items),
                                   encodings=list(dict.fromkeys(r.encoding for r in items))))
+    return list(by_method), summaries, tables
+
+
+def build_report(run, rows, registry=None, title: str | None = None) -> ReportData:
+    """:class:`ReportData` from a :class:`RunRecord` and its :class:`ResultRow` list."""
+    from benchsuite.report.terminal import within_label
+
+    rows = sorted(rows, key=lambda r: (r.method, r.scan_parent or r.case, r.scan_length or 0.0, r.case,
+                                       r.basis, r.encoding, r.task_key))
+    anchors = {r.task_key: f"task-{n}" for n, r in enumerate(rows)}
+    methods, summaries, tables = _method_parts(run, rows, registry, anchors)
     gate = stored_gate(run, rows)
+    counts = _counts(r.verdict for r in rows)
     return ReportData(
-        title=title or f"benchsuite report: run {run.run_id}", gate=gate,
+        title=title or default_title(run, methods), gate=gate,
         run_id=run.run_id, gate_passed=gate["passed"], n_tasks=len(rows), n_failing=len(gate["failing"]),
-        counts=_counts(r.verdict for r in rows), threshold_mha=run.threshold_mha,
+        counts=counts, threshold_mha=run.threshold_mha,
         threshold_source=run.threshold_source, summaries=summaries, tables=tables,
-        heatmap=_heatmap(rows, list(by_method)), scans=_scans(rows, run.threshold_mha),
-        ladders=(ladders := _ladders(rows)), ladder_rungs=_ladder_columns(ladders), resources=[_resource_row(r) for r in rows],
+        matrix=build_matrix(rows, methods, anchors, gate, registry, VERDICTS),
+        scans=_scans(rows, run.threshold_mha, registry),
+        ladders=(ladders := _ladders(rows)), ladder_rungs=_ladder_columns(ladders),
+        resources=[_resource_row(r) for r in sorted(rows, key=worst_first)],
         provenance=_provenance(run, rows), bibliography=_bibliography(rows, registry),
-        tags=sorted({t for r in rows for t in r.tags}), verdicts=[v for v in VERDICTS if any(r.verdict == v for r in rows)])
+        tags=sorted({t for r in rows for t in r.tags}), verdicts=list(counts),
+        within_label=within_label(rows, run.threshold_mha))
+
+
+def default_title(run, methods: list[str]) -> str:
+    """``exact-sector and tallowick on the smoke suite``: what was judged on what."""
+    names = [m.rsplit(":", 1)[-1] if ":" in m else m for m in methods] or list(run.methods)
+    who = names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1] if names else "no method"
+    what = f"the {run.suite} suite" if run.suite else (
+        ", ".join(run.cases) if 0 < len(run.cases) <= 4 else f"{len(run.cases)} cases")
+    return f"{who} on {what}"
 
 
 def stored_gate(run, rows) -> dict:
@@ -335,7 +363,8 @@ def _worst(items) -> tuple | None:
     return (r.case, r.basis, r.error_mha, r.verdict)
 
 
-def _task_row(r, registry) -> TaskRow:
+def _task_row(r, registry, anchor: str) -> TaskRow:
+    mol = molecule_of(r.case, registry)
     return TaskRow(task_key=r.task_key, case=r.case, basis=r.basis, encoding=r.encoding, space=r.space,
                    method=r.method, n_qubits=r.n_qubits, n_terms=r.n_terms, energy_ha=r.energy_ha,
                    reference_energy_ha=r.reference_energy_ha, reference_method=r.reference_method,
@@ -343,7 +372,10 @@ def _task_row(r, registry) -> TaskRow:
                    threshold_mha=r.threshold_mha, verdict=r.verdict, status=r.status, seconds=r.seconds,
                    tags=list(r.tags), message=r.message.strip(), scan_parent=r.scan_parent,
                    scan_length=r.scan_length, sources=row_citations(r, registry), converged=r.converged,
-                   captured_output=_output_tail(r.captured_output or ""))
+                   captured_output=_output_tail(r.captured_output or ""), anchor=anchor,
+                   label=task_label(r.case, r.basis, r.encoding, r.method, full_encoding=True),
+                   molecule_html="" if mol is None else mol.html(), geometry=geometry_label(r, registry),
+                   basis_label=basis_label(r.basis), encoding_label=encoding_label(r.encoding))
 
 
 #: Characters of a task's worker output the report shows (its end); the JSON export has all that is stored.
@@ -357,41 +389,7 @@ def _output_tail(text: str) -> str:
             + text[-REPORT_OUTPUT_CHARS:])
 
 
-def heat_band(error_mha: float | None, threshold_mha: float, verdict: str) -> str:
-    """CSS band of a heat-map cell: how far |error| lies inside or outside the threshold."""
-    if verdict == "below-exact":
-        return "below"
-    if error_mha is None or verdict in ("error", "timeout", "invalid"):
-        return "none"
-    ratio = abs(error_mha) / threshold_mha
-    if ratio <= 0.1:
-        return "in0"
-    if ratio <= 1.0:
-        return "in1"
-    return "out" + str(min(3, 1 + int(math.log10(ratio))))
-
-
-def _task_label(case: str, basis: str, encoding: str, several_encodings: bool) -> str:
-    return f"{case} ({basis}" + (f", {encoding})" if several_encodings else ")")
-
-
-def _heatmap(rows, methods: list[str]) -> HeatMap:
-    several = len({r.encoding for r in rows}) > 1
-    keys = list(dict.fromkeys(sorted(((r.scan_parent or r.case, r.scan_length or 0.0, r.case), r.basis, r.encoding)
-                                     for r in rows)))
-    cells = {(r.case, r.basis, r.encoding, r.method): r for r in rows}
-    out = []
-    for (_, _, case), basis, enc in keys:
-        line = []
-        for m in methods:
-            r = cells.get((case, basis, enc, m))
-            line.append(None if r is None else HeatCell(r.error_mha, r.verdict,
-                                                        heat_band(r.error_mha, r.threshold_mha, r.verdict)))
-        out.append(HeatRow(_task_label(case, basis, enc, several), case, basis, enc, line))
-    return HeatMap(methods, out)
-
-
-def _scans(rows, threshold_mha: float) -> list[ScanData]:
+def _scans(rows, threshold_mha: float, registry=None) -> list[ScanData]:
     groups: dict[tuple, list] = {}
     for r in rows:
         if r.scan_parent and r.scan_length is not None:
@@ -420,7 +418,9 @@ def _scans(rows, threshold_mha: float) -> list[ScanData]:
             name=name, basis=basis, encoding=enc,
             reference_method=next((refs[x][1] for x in lengths), None), lengths=lengths,
             reference_energies=[refs[x][0] for x in lengths], series=series,
-            threshold_mha=thresholds.pop() if len(thresholds) == 1 else threshold_mha))
+            threshold_mha=thresholds.pop() if len(thresholds) == 1 else threshold_mha,
+            length_unit=length_unit(items[0].case, registry), basis_label=basis_label(basis),
+            title=getattr((registry.cases.get(name) if registry is not None else None), "title", "")))
     return scans
 
 
@@ -508,7 +508,8 @@ def _bibliography(rows, registry) -> list[Citation]:
             cite(case.geometry_source, f"geometry of {r.case}")
         for p in (r.secondary or {}).get("published") or []:
             if p.get("source"):
-                cite(p["source"], f"published {p.get('method', '?')} energy of {r.case} [{p.get('basis', r.basis)}]")
+                cite(p["source"], f"published {p.get('method', '?')} energy of "
+                                  f"{task_label(r.case, p.get('basis', r.basis))}")
     out = []
     for key, what in uses.items():
         entry = None if registry is None else registry.bib.get(key)
@@ -529,9 +530,32 @@ def _environment():
                              undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True)
     env.filters["num"] = _num
     env.filters["dataval"] = lambda x: "" if x is None else repr(x) if isinstance(x, float) else str(x)
-    env.globals["VERDICT_LABELS"] = VERDICT_LABELS
-    env.globals["is_failing"] = is_failing
+    env.filters["err"] = error_text
+    env.filters["basis"] = basis_label
+    env.filters["enc"] = encoding_label
+    env.globals.update(VERDICT_LABELS=VERDICT_LABELS, verdict_label=verdict_label, is_failing=is_failing,
+                       task_label=task_label, scale_text=scale_text)
     return env
+
+
+def error_text(error_mha) -> str:
+    """An error in mHa for a matrix cell: three decimals below 1 mHa, two below 100, one below 1000,
+    none above; a real minus sign; an em dash without an error."""
+    if error_mha is None:
+        return "—"
+    size = abs(error_mha)
+    spec = "+.3f" if size < 1 else "+.2f" if size < 100 else "+.1f" if size < 1000 else "+.0f"
+    return _num(error_mha, spec)
+
+
+def scale_text(k: int) -> str:
+    """The legend text of accuracy-scale bin ``k`` (|error| / threshold): ``≤ 0.1``, ``0.1–1``, ``> 100``."""
+    edges = SCALE_EDGES
+    if k == 0:
+        return f"≤ {edges[0]:g}"
+    if k >= len(edges):
+        return f"> {edges[-1]:g}"
+    return f"{edges[k - 1]:g}–{edges[k]:g}"
 
 
 def _num(x, spec: str = ".6f", missing: str = "—") -> str:

@@ -12,17 +12,19 @@ well as colour.
 from __future__ import annotations
 
 import io
+import math
 import re
 
 import matplotlib
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter
 
 #: (colour, marker, line style) per method, in order; the reference is black.
 SERIES_STYLES = (("#1f5f8b", "s", "--"), ("#b5561b", "^", "-."), ("#5b8c2a", "D", ":"),
                  ("#7a3f8f", "v", (0, (5, 1, 1, 1))), ("#8b6d1f", "P", (0, (3, 1))),
                  ("#2a7f7f", "X", (0, (1, 1))))
-BAND_COLOUR = "#d5eadf"
+BAND_COLOUR = "#e1f0e7"
 
 _PROLOG = re.compile(r"<\?xml[^>]*\?>\s*|<!DOCTYPE[^>]*>\s*", re.S)
 _METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
@@ -61,35 +63,71 @@ def _new_figure(width: float, height: float) -> Figure:
     return fig
 
 
+#: The |error| axis never reaches below this (mHa): smaller errors sit on the floor, marked.
+ERROR_FLOOR_MHA = 1e-3
+
+
+def error_axis_limits(errors_mha, threshold_mha: float) -> tuple[float, float]:
+    """(bottom, top) of the log |error| axis in mHa: from the floor (or a decade under the smallest
+    error, if higher) to a decade over the largest error, always showing the threshold line."""
+    sizes = [abs(e) for e in errors_mha if e is not None and e != 0.0]
+    low = max(ERROR_FLOOR_MHA, min(sizes + [threshold_mha]) / 10.0)
+    high = max(sizes + [threshold_mha]) * 3.0
+    return 10 ** math.floor(math.log10(low)), 10 ** math.ceil(math.log10(high))
+
+
+def _error_series(ax, s, style, bottom: float) -> None:
+    """|error| of one method: filled markers above the reference, open ones below, floor clipped."""
+    colour, marker, line = style
+    sizes = [None if e is None else max(abs(e), bottom) for e in s.errors]
+    ax.plot(s.lengths, [float("nan") if v is None else v for v in sizes], color=colour, ls=line, lw=1.2)
+    for x, e, v in zip(s.lengths, s.errors, sizes):
+        if e is None:
+            continue
+        clipped = abs(e) < bottom          # at the floor the sign is noise: one marker for both
+        ax.plot([x], [v], marker="v" if clipped else marker, ms=5, color=colour, ls="none", clip_on=False,
+                markerfacecolor="white" if e < 0 and not clipped else colour, markeredgewidth=1.1)
+    if any(x is not None for x in s.sigmas_mha):
+        ys = [float("nan") if v is None else v for v in sizes]
+        err = [0.0 if x is None else x for x in s.sigmas_mha]
+        lower = [0.0 if math.isnan(y) else min(sigma, y - bottom) for sigma, y in zip(err, ys)]
+        ax.errorbar(s.lengths, ys, yerr=[lower, err], color=colour, ls="none", capsize=2, lw=0.9)
+
+
 def scan_svg(scan, salt: str) -> str:
-    """Dissociation curve of one scan: energies (top) and errors in mHa inside the
-    +/- threshold band (bottom, symmetric-log scale once errors dwarf the band)."""
-    fig = _new_figure(7.4, 5.6)
-    top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2))
-    top.plot(scan.lengths, scan.reference_energies, color="black", lw=1.6, marker="o", ms=4,
+    """Curve of one scan: energies (top) and |error| in mHa on a log axis (bottom) with the
+    threshold as a line, the region within it shaded; below-reference points drawn open."""
+    fig = _new_figure(7.4, 5.8)
+    top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=(3, 2.4))
+    unit = getattr(scan, "length_unit", "Å")
+    top.plot(scan.lengths, scan.reference_energies, color="black", lw=1.6, marker="o", ms=3.5,
              label=mpl_text(f"{scan.reference_method or 'reference'} (reference)"))
     thr = scan.threshold_mha
-    bottom.axhspan(-thr, thr, color=BAND_COLOUR, lw=0)
-    bottom.axhline(0.0, color="black", lw=0.8)
-    worst = thr
+    low, high = error_axis_limits([e for s in scan.series for e in s.errors], thr)
+    bottom.set_yscale("log")
+    bottom.set_ylim(low, high)
+    bottom.axhspan(low, thr, color=BAND_COLOUR, lw=0)
+    bottom.axhline(thr, color="#1e6b47", lw=1.2)
+    bottom.annotate(f"threshold {thr:.2f} mHa", xy=(1.0, thr), xycoords=("axes fraction", "data"),
+                    xytext=(-4, 3), textcoords="offset points", ha="right", va="bottom", fontsize=7.5,
+                    color="#1e6b47")
+    floored = []
     for i, s in enumerate(scan.series):
-        colour, marker, style = SERIES_STYLES[i % len(SERIES_STYLES)]
-        label = mpl_text(s.method)
-        top.plot(s.lengths, s.energies, color=colour, marker=marker, ms=4, ls=style, lw=1.3, label=label)
-        errs = [e for e in s.errors if e is not None]
-        worst = max([worst] + [abs(e) for e in errs])
-        sigma = s.sigmas_mha if any(x is not None for x in s.sigmas_mha) else None
-        bottom.errorbar(s.lengths, [float("nan") if e is None else e for e in s.errors],
-                        yerr=None if sigma is None else [0.0 if x is None else x for x in sigma],
-                        color=colour, marker=marker, ms=4, ls=style, lw=1.3, capsize=2)
-    if worst > 8 * thr:
-        bottom.set_yscale("symlog", linthresh=thr, linscale=1.0)
+        style = SERIES_STYLES[i % len(SERIES_STYLES)]
+        top.plot(s.lengths, s.energies, color=style[0], marker=style[1], ms=4, ls=style[2], lw=1.3,
+                 label=mpl_text(s.method))
+        _error_series(bottom, s, style, low)
+        if any(e is not None and abs(e) < low for e in s.errors):
+            floored.append(s.method)
+    if floored:
+        bottom.annotate(mpl_text(f"▼ at or below {low:g} mHa: " + ", ".join(floored)), xy=(0.01, 0.03),
+                        xycoords="axes fraction", ha="left", va="bottom", fontsize=7.5, color="#444444")
     top.set_ylabel("energy / Eh")
-    top.set_title(mpl_text(f"{scan.name}  [{scan.basis}, {scan.encoding}]"), fontsize=10)
     top.legend(fontsize=8, frameon=False)
-    bottom.set_ylabel("error / mHa")
-    bottom.set_xlabel("bond length / Å")
-    bottom.set_title(f"error; shaded: the ±{thr:.4f} mHa pass band", fontsize=8, loc="left")
+    bottom.yaxis.set_major_formatter(FuncFormatter(lambda y, _pos: f"{y:g}"))
+    bottom.set_ylabel("|error| / mHa")
+    bottom.set_xlabel(f"bond length r / {unit}")
     for ax in (top, bottom):
-        ax.grid(True, lw=0.4, color="#cccccc")
-    return figure_svg(fig, salt, f"Dissociation curve of {scan.name} in {scan.basis}: energies and errors")
+        ax.grid(True, lw=0.4, color="#d5d5d5")
+    bottom.grid(True, which="minor", lw=0.2, color="#e6e6e6")
+    return figure_svg(fig, salt, f"Curve of {scan.name} in {scan.basis}: energies and errors along the bond")

@@ -7,8 +7,19 @@ stdout stays clean for machine-readable output.
 
 from __future__ import annotations
 
+import re
 import sys
 import time
+
+from benchsuite.report.naming import task_label
+
+_CASE_BASIS = re.compile(r"^(?P<case>.*)\[(?P<basis>[^\[\]]*)\]$")
+
+
+def reference_label(label: str) -> str:
+    """The runner's ``case[basis]`` label as the report names it: ``h2 / STO-3G``."""
+    m = _CASE_BASIS.match(label)
+    return task_label(m["case"], m["basis"]) if m else label
 
 
 class Progress:
@@ -22,7 +33,7 @@ class Progress:
         self.t0 = time.perf_counter()          # the task phase starts after the last reference: ETA from here
         if not self.interactive:
             state = fields.get("status")
-            self.stream.write(f"reference {label}: {state} ({fields.get('seconds', 0.0):.1f} s)\n")
+            self.stream.write(f"reference {reference_label(label)}: {state} ({fields.get('seconds', 0.0):.1f} s)\n")
             self.stream.flush()
 
     def eta(self) -> str:
@@ -43,7 +54,8 @@ class Progress:
             self.stream.write("\r" + head.ljust(60))
         else:
             err = "" if row.error_mha is None else f" {row.error_mha:+.4f} mHa"
-            self.stream.write(f"{head}  {row.method} on {row.case} ({row.basis}): {row.verdict}{err}\n")
+            task = task_label(row.case, row.basis, row.encoding, row.method)
+            self.stream.write(f"{head}  {task}: {row.verdict}{err}\n")
         self.stream.flush()
 
     def close(self) -> None:

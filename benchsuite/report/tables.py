@@ -2,12 +2,15 @@
 
 Every table carries what a reader needs to cite and reproduce it:
 
+* the molecule as a formula with its charge and state (Hill order from the
+  registry, :class:`benchsuite.report.naming.Molecule`: ``HHe⁺``, ``³O₂``), the
+  basis as published (``STO-3G``, ``cc-pVDZ``, ``6-31G``);
 * units in the column headers (energies in Eh, errors and sigma in mHa, times in s);
 * the pass threshold and its source;
 * the reference rung of each row (``fci`` or ``casci``);
-* citation keys from ``sources.bib`` for each row: the case's geometry source
-  and the sources of its published values (``\\cite{key}`` in LaTeX, ``[@key]``
-  in Markdown, the bare keys in CSV);
+* citation keys from ``sources.bib`` for each row, the geometry's source and the
+  sources of the published reference energies in separate columns
+  (``\\cite{key}`` in LaTeX, ``[@key]`` in Markdown, the bare keys in CSV);
 * the run id and a short content hash of the run's results
   (:func:`results_hash`), so two tables built from the same results carry the
   same hash and any changed energy, error or verdict changes it.
@@ -17,6 +20,10 @@ CSV values are raw, at full precision (``repr``), missing ones empty:
 stored floats exactly.
 
 ``--bib FILE`` writes the cited BibTeX entries verbatim (:func:`bibtex_for`).
+
+The LaTeX is ASCII only and needs nothing beyond ``booktabs``: it compiles as it
+is under pdfLaTeX, XeLaTeX or LuaLaTeX (a non-ASCII character in a value is
+written as its nearest ASCII letters, or ``?``).
 
 Plain records in (:class:`~benchsuite.store.records.ResultRow`), text out:
 no PySCF, no OpenFermion.
@@ -33,6 +40,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 from benchsuite.errors import InputError
+from benchsuite.report.naming import basis_label, encoding_label, molecule_of
 from benchsuite.store.records import dumps
 
 FORMATS = ("latex", "markdown", "csv")
@@ -51,16 +59,20 @@ def results_hash(rows) -> str:
     return hashlib.sha256(dumps(items).encode()).hexdigest()[:12]
 
 
+def geometry_citations(row, registry=None) -> list[str]:
+    """Bib key of the row's geometry source (empty without a registry that has the case)."""
+    case = None if registry is None else registry.cases.get(row.case)
+    return [case.geometry_source] if case is not None and case.geometry_source else []
+
+
+def reference_citations(row) -> list[str]:
+    """Bib keys of the published reference energies stored with the row."""
+    return list(dict.fromkeys(p["source"] for p in (row.secondary or {}).get("published") or [] if p.get("source")))
+
+
 def row_citations(row, registry=None) -> list[str]:
     """Bib keys a row rests on: the case's geometry source, then its published values' sources."""
-    keys = []
-    case = None if registry is None else registry.cases.get(row.case)
-    if case is not None and case.geometry_source:
-        keys.append(case.geometry_source)
-    for pub in (row.secondary or {}).get("published") or []:
-        if pub.get("source"):
-            keys.append(pub["source"])
-    return list(dict.fromkeys(keys))
+    return list(dict.fromkeys(geometry_citations(row, registry) + reference_citations(row)))
 
 
 def cited_keys(rows, registry=None) -> list[str]:
@@ -96,9 +108,27 @@ def _one_line(text) -> str:
     return _CONTROL.sub(" ", str(text))
 
 
+#: Non-ASCII characters a value or caption may carry, as ASCII LaTeX.
+_LATEX_UNICODE = {"–": "--", "—": "---", "−": "-", "≤": r"$\le$", "≥": r"$\ge$", "±": r"$\pm$",
+                  "×": r"$\times$", "·": r"$\cdot$", "σ": r"$\sigma$", "Å": r"\AA{}", "’": "'", "“": "``",
+                  "”": "''", "µ": r"$\mu$", "→": r"$\to$"}
+
+
+def _ascii_latex(ch: str) -> str:
+    """One non-ASCII character as ASCII LaTeX: a known symbol, else its letters without accents, else ``?``."""
+    import unicodedata
+
+    if ch in _LATEX_UNICODE:
+        return _LATEX_UNICODE[ch]
+    folded = unicodedata.normalize("NFKD", ch).encode("ascii", "ignore").decode()
+    return latex_escape(folded) if folded else "?"
+
+
 def latex_escape(text) -> str:
-    """``text`` with every LaTeX special character made literal; control characters become spaces."""
-    return _one_line(text).translate(_LATEX_TABLE)
+    """``text`` with every LaTeX special character made literal and every non-ASCII character made
+    ASCII (:func:`_ascii_latex`); control characters become spaces."""
+    out = _one_line(text).translate(_LATEX_TABLE)
+    return out if out.isascii() else "".join(c if c.isascii() else _ascii_latex(c) for c in out)
 
 
 def markdown_escape(text) -> str:
@@ -174,10 +204,16 @@ def _mha(x):
     return None if x is None else 1000.0 * x
 
 
+#: Columns whose cells are citation keys, and where the keys come from.
+CITATION_COLUMNS = {"sources": lambda c: c["all"], "geometry_source": lambda c: c["geometry"],
+                    "reference_source": lambda c: c["reference"]}
+
+
 COLUMNS: dict[str, TableColumn] = {c.name: c for c in (
+    TableColumn("molecule", "molecule", "Molecule", "l", lambda r, c, x: x["molecules"].get(r.case)),
     TableColumn("case", "case", "Case", "l", lambda r, c, x: r.case),
-    TableColumn("basis", "basis", "Basis", "l", lambda r, c, x: r.basis),
-    TableColumn("encoding", "encoding", "Encoding", "l", lambda r, c, x: r.encoding),
+    TableColumn("basis", "basis", "Basis", "l", lambda r, c, x: basis_label(r.basis)),
+    TableColumn("encoding", "encoding", "Encoding", "l", lambda r, c, x: encoding_label(r.encoding)),
     TableColumn("space", "orbital space", "Space", "l", lambda r, c, x: r.space),
     TableColumn("method", "method", "Method", "l", lambda r, c, x: r.method),
     TableColumn("qubits", "qubits", "Qubits", "r", lambda r, c, x: r.n_qubits, "d", True),
@@ -201,14 +237,18 @@ COLUMNS: dict[str, TableColumn] = {c.name: c for c in (
     TableColumn("two_qubit_gates", "two-qubit gates", "Two-qubit gates", "r", _res("two_qubit_gates"), "d", True),
     TableColumn("depth", "circuit depth", "Depth", "r", _res("circuit_depth"), "d", True),
     TableColumn("shots", "shots", "Shots", "r", _res("shots"), "d", True),
-    TableColumn("sources", "sources (bib keys)", "Sources", "l", lambda r, c, x: " ".join(c)),
+    TableColumn("geometry_source", "geometry source (bib key)", "Geometry", "l",
+                lambda r, c, x: " ".join(c["geometry"])),
+    TableColumn("reference_source", "reference-energy source (bib keys)", "Ref.\\ energy", "l",
+                lambda r, c, x: " ".join(c["reference"])),
+    TableColumn("sources", "sources (bib keys)", "Sources", "l", lambda r, c, x: " ".join(c["all"])),
     TableColumn("task_key", "task key", "Task", "l", lambda r, c, x: r.task_key),
     TableColumn("run", "run id", "Run", "l", lambda r, c, x: x["run_id"]),
     TableColumn("results_hash", "results sha256[:12]", "Results hash", "l", lambda r, c, x: x["hash"]),
 )}
 
-DEFAULT_COLUMNS = ("case", "basis", "method", "qubits", "energy", "reference", "rung", "error", "verdict",
-                   "sources")
+DEFAULT_COLUMNS = ("molecule", "case", "basis", "method", "qubits", "energy", "reference", "rung", "error",
+                   "verdict", "geometry_source", "reference_source")
 #: A CSV row stands alone, so it also carries its threshold and the run's identity.
 DEFAULT_CSV_COLUMNS = DEFAULT_COLUMNS + ("threshold", "run", "results_hash")
 
@@ -239,26 +279,32 @@ class Table:
     thresholds_differ: bool
     columns: list[TableColumn]
     values: list[list]
-    cites: list[list[str]]
+    cites: list[dict]               # per row: {"geometry", "reference", "all"} bib keys
     keys: list[str]
 
 
 def build_table(run, rows, columns: list[TableColumn], registry=None) -> Table:
     """The rows in table order (method, case, basis, encoding) with every column's raw value."""
-    rows = sorted(rows, key=lambda r: (r.method, r.case, r.basis, r.encoding, r.task_key))
-    ctx = {"run_id": run.run_id, "hash": results_hash(rows)}
-    cites = [row_citations(r, registry) for r in rows]
+    rows = sorted(rows, key=lambda r: (r.method, r.scan_parent or r.case, r.scan_length or 0.0, r.case, r.basis,
+                                       r.encoding, r.task_key))
+    ctx = {"run_id": run.run_id, "hash": results_hash(rows),
+           "molecules": {r.case: m for r in rows if (m := molecule_of(r.case, registry)) is not None}}
+    cites = [{"geometry": geometry_citations(r, registry), "reference": reference_citations(r),
+              "all": row_citations(r, registry)} for r in rows]
     values = [[col.value(r, c, ctx) for col in columns] for r, c in zip(rows, cites)]
     return Table(run_id=run.run_id, results_hash=ctx["hash"], threshold_mha=run.threshold_mha,
                  threshold_source=run.threshold_source,
                  thresholds_differ=any(abs(r.threshold_mha - run.threshold_mha) > 1e-12 for r in rows),
-                 columns=columns, values=values, cites=cites, keys=list(dict.fromkeys(k for c in cites for k in c)))
+                 columns=columns, values=values, cites=cites,
+                 keys=list(dict.fromkeys(k for c in cites for k in c["all"])))
 
 
 def _text(col: TableColumn, value) -> str:
     """A value as printed text (not yet escaped): numbers through ``col.fmt``, missing ones ``--``."""
     if value is None or value == "" or (isinstance(value, float) and not math.isfinite(value)):
         return "--" if col.number else ""
+    if col.name == "molecule":
+        return value.text()
     if col.fmt and is_number(value):
         return format_number(value, col.fmt)
     return str(value)
@@ -266,16 +312,24 @@ def _text(col: TableColumn, value) -> str:
 
 def _caption(t: Table, escape: Callable[[str], str], le: str) -> str:
     per_row = " (a case or suite threshold differs on some rows: see their threshold)" if t.thresholds_differ else ""
-    return (escape("Energies against the FCI/CASCI reference in the same orbital space; pass if |error| ") + le
-            + escape(f" {t.threshold_mha:.4f} mHa ({t.threshold_source}){per_row}. "
-                     f"benchsuite run {t.run_id}, results hash {t.results_hash}."))
+    names = {c.name for c in t.columns}
+    molecules = (" Molecules as formulas in Hill order, charge as a superscript, spin multiplicity as a left"
+                 " superscript (singlets without).") if "molecule" in names else ""
+    sources = (" Geometry and published reference energies cited from their sources."
+               if names & {"geometry_source", "reference_source", "sources"} else "")
+    return (escape("Energies against the FCI/CASCI reference computed in the same orbital space; pass if |error| ")
+            + le + escape(f" {t.threshold_mha:.4f} mHa ({t.threshold_source}){per_row}.{molecules}{sources} "
+                          f"benchsuite run {t.run_id}, results hash {t.results_hash}."))
 
 
 def render_latex(t: Table) -> str:
     """A ``table`` environment with a booktabs ``tabular`` (needs ``\\usepackage{booktabs}``)."""
     def cell(col, value, cites):
-        if col.name == "sources":
-            return ", ".join(rf"\cite{{{k}}}" if _CITE_KEY.fullmatch(k) else latex_escape(k) for k in cites)
+        if col.name in CITATION_COLUMNS:
+            keys = CITATION_COLUMNS[col.name](cites)
+            return ", ".join(rf"\cite{{{k}}}" if _CITE_KEY.fullmatch(k) else latex_escape(k) for k in keys) or "--"
+        if col.name == "molecule" and value is not None:
+            return value.latex()
         text = _text(col, value)
         if col.number and is_number(value):       # only a real number enters math mode
             return f"${text}$"
@@ -300,8 +354,9 @@ def render_latex(t: Table) -> str:
 def render_markdown(t: Table) -> str:
     """A pipe table (GitHub / pandoc), its caption as a pandoc ``Table:`` line before it."""
     def cell(col, value, cites):
-        if col.name == "sources":
-            return "; ".join(f"[@{k}]" if _CITE_KEY.fullmatch(k) else markdown_escape(k) for k in cites)
+        if col.name in CITATION_COLUMNS:
+            keys = CITATION_COLUMNS[col.name](cites)
+            return "; ".join(f"[@{k}]" if _CITE_KEY.fullmatch(k) else markdown_escape(k) for k in keys)
         return markdown_escape(_text(col, value))
 
     def line(cells):
@@ -320,7 +375,7 @@ def render_csv(t: Table) -> str:
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow([csv_cell(c.header) for c in t.columns])
     for values in t.values:
-        writer.writerow([csv_cell(v) for v in values])
+        writer.writerow([csv_cell(_text(c, v) if c.name == "molecule" else v) for c, v in zip(t.columns, values)])
     return buf.getvalue()
 
 

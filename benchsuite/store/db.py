@@ -595,6 +595,34 @@ class ResultStore:
             raise ValueError(f"cannot store {row.task_key} of run {row.run_id} in {self.path}: {exc}") from exc
         self._side_rows_stored()
 
+    @_guarded
+    def add_results(self, rows: list[ResultRow]) -> None:
+        """Store many new rows of one run in one transaction, chained in the given order, the record
+        resealed once (for callers holding all rows at once: a scored results file).  A key already
+        stored, or two rows with one key, is a ValueError; no side-file fallback (a lock held for the
+        whole wait is a :class:`StoreBusyError`)."""
+        if not rows:
+            return
+        run_id = rows[0].run_id
+        for row in rows:
+            if row.status not in STATUSES or row.verdict not in VERDICTS or row.run_id != run_id:
+                raise ValueError(f"{row.task_key}: unknown status/verdict or another run")
+        keyed = [(row.task_key, _storable_row(row)) for row in rows]
+        with _transaction(self._conn) as conn:
+            found = _checked_run(conn, run_id, self.path)
+            if found is None:
+                raise ValueError(f"no run {run_id!r} in {self.path}")
+            _, head, length = found
+            stored = {k for (k,) in conn.execute("SELECT task_key FROM results WHERE run_id = ?", (run_id,))}
+            for key, values in keyed:
+                if key in stored:
+                    raise ValueError(f"{key} is already stored in run {run_id}")
+                stored.add(key)
+                length, head = length + 1, row_hash(head, RESULT_NAMES, values)
+                conn.execute(_insert(RESULT_COLUMNS, "results", extra=RESULT_CHAIN), values + (length, head))
+            conn.execute("UPDATE runs SET chain_head = ?, chain_length = ? WHERE run_id = ?", (head, length, run_id))
+            _reseal(conn, run_id)
+
     def _put_side_rows(self, conn: sqlite3.Connection, entries: list, keep: list) -> None:
         """Store the side file's entries (each in a savepoint); keep those that cannot be stored."""
         for entry in entries:

@@ -32,8 +32,8 @@ def test_every_public_name_is_documented():
 
 
 def test_selection():
-    assert [e.case.name for e in api.load_suite("smoke")] == ["h2", "h2-1p4-bohr", "heh-cation", "lih",
-                                                               "h4-square", "oh"]
+    assert [e.case.name for e in api.load_suite("smoke")] == ["h2", "heh-cation", "lih", "hf", "h4-square",
+                                                               "oh"]
     assert {e.basis.label for e in api.select(cases=["h2", "lih"], basis="sto-3g")} == {"sto-3g"}
     assert api.load_case("heh-cation").charge == 1
     with pytest.raises(InputError):

@@ -189,8 +189,8 @@ def test_marker_and_options_choose_the_cases_with_readable_ids(tmp_path, cache_d
         "    assert bs_case.case.name in ('h2', 'heh-cation')\n")
     listed = run_pytest(repo, tmp_path / "r.sqlite", cache_dir, "--co", "-q").stdout.splitlines()
     ids = [ln.split("::", 1)[1] for ln in listed if "::" in ln]
-    assert ids == ["test_tallowick_energy[h2/sto-3g]", "test_tallowick_energy[h2-1p4-bohr/sto-3g]",
-                   "test_tallowick_energy[heh-cation/sto-3g]", "test_tallowick_energy[lih/sto-3g]",
+    assert ids == ["test_tallowick_energy[h2/sto-3g]", "test_tallowick_energy[heh-cation/sto-3g]",
+                   "test_tallowick_energy[lih/sto-3g]", "test_tallowick_energy[hf/sto-3g]",
                    "test_tallowick_energy[h4-square/sto-3g]", "test_tallowick_energy[oh/sto-3g]",
                    "test_pinned[h2/sto-3g]", "test_pinned[heh-cation/sto-3g]"]     # default: the smoke suite
     listed = run_pytest(repo, tmp_path / "r.sqlite", cache_dir, "--co", "-q", "--bs-case=lih",

@@ -173,3 +173,14 @@ def test_unconverged_scf_is_flagged_everywhere(scratch, monkeypatch, run_cli):
     code, out, err = run_cli("references", "scratch-h2", "--case-file", str(path), "--no-cache")
     assert code == 0, err
     assert "NOT CONVERGED" in out and "FLAGS:" in out and "not converged" in out
+
+
+def test_a_non_finite_rung_is_failed_not_ok():
+    """NaN from a zero orbital-energy gap (MP2 on a degenerate open-shell singlet) never counts as a value."""
+    from benchsuite.chem.ladder import Rung, _finite_or_failed
+
+    bad = _finite_or_failed(Rung("mp2", float("nan"), float("nan"), "full", 0.1))
+    assert (bad.status, bad.energy_ha, bad.correlation_ha) == ("failed", None, None)
+    assert "non-finite" in bad.note
+    good = Rung("mp2", -1.0, -0.01, "full", 0.1)
+    assert _finite_or_failed(good) is good

@@ -30,6 +30,45 @@ def test_h2_minimal_basis_szabo_ostlund(registry, cache):
     assert _energy(lad, "ccsd") == pytest.approx(_energy(lad, "fci"), abs=1e-8)
 
 
+def _scaled_sto3g(zeta: float) -> list:
+    """A 1s STO-3G contraction for Slater exponent zeta: the zeta = 1 exponents and coefficients of
+    W. J. Hehre, R. F. Stewart, J. A. Pople, J. Chem. Phys. 51, 2657 (1969) (as tabulated by Szabo &
+    Ostlund, from memory), exponents scaled by zeta^2."""
+    exponents, coefficients = (2.227660, 0.405771, 0.109818), (0.154329, 0.535328, 0.444635)
+    return [[0] + [[a * zeta ** 2, c] for a, c in zip(exponents, coefficients)]]
+
+
+def test_heh_cation_textbook_scf():
+    """HeH+ at R = 1.4632 bohr with STO-3G contractions of zeta(He) = 2.0925, zeta(H) = 1.24 (not the
+    standard STO-3G He exponent, hence built here and not a registry case): electronic SCF energy
+    -4.227529 Eh, orbital energies -1.597448 and -0.061664 Eh (Szabo & Ostlund, Modern Quantum
+    Chemistry, 1989, section 3.5.3 and appendix B; values from memory), to 1e-5 Eh."""
+    from pyscf import gto, scf
+
+    mol = gto.M(atom=[["He", (0, 0, 0)], ["H", (0, 0, 1.4632)]], unit="bohr", charge=1, verbose=0,
+                basis={"He": _scaled_sto3g(2.0925), "H": _scaled_sto3g(1.24)})
+    mf = scf.RHF(mol).run(conv_tol=1e-12)
+    assert mf.converged
+    assert mf.e_tot - mol.energy_nuc() == pytest.approx(-4.227529, abs=1e-5)
+    assert mf.mo_energy == pytest.approx([-1.597448, -0.061664], abs=1e-5)
+
+
+def test_default_suites_do_not_lean_on_textbook_examples(registry):
+    """The textbook worked examples (cases tagged textbook-check) are outside checks for the tests in
+    this module; the suites users run by default are our own cited selection."""
+    textbook = {"szabo-ostlund-1996", "crawford-programming-projects"}
+    checks = {name for name, case in registry.cases.items() if "textbook-check" in case.tags}
+    assert {"h2-1p4-bohr", "h2o-crawford"} <= checks
+    assert all(registry.cases[name].geometry_source in textbook for name in checks)
+    for suite in ("smoke", "core", "stretched", "open-shell"):
+        entries = registry.suite_entries(suite)
+        assert entries, suite
+        for entry in entries:
+            assert entry.case.name not in checks and entry.case.geometry_source not in textbook, (suite, entry)
+            assert entry.case.geometry_source in registry.bib
+    assert any(entry.case.charge > 0 for entry in registry.suite_entries("smoke"))   # the demo's cation
+
+
 def test_water_sto3g_crawford_project(registry, cache):
     """H2O/STO-3G at the geometry of T. D. Crawford's Programming Projects (Project #5, STO-3G
     water output): E(SCF) = -74.942079928192 Eh, CCSD correlation -0.070680088376 Eh (1e-6)."""

@@ -14,6 +14,8 @@ Cases:
 
 from __future__ import annotations
 
+import math
+
 import json
 from pathlib import Path
 
@@ -67,6 +69,9 @@ def test_o2_singlet_ladder_keeps_the_singlet_and_records_the_triplet(o2, pyscf_o
     assert primary.energy_ha == pytest.approx(singlet, abs=1e-7) and primary.s2 == pytest.approx(0.0, abs=1e-6)
     assert primary.sector_lowest_ha == pytest.approx(lowest, abs=1e-7)
     assert 1000 * (primary.energy_ha - primary.sector_lowest_ha) == pytest.approx(35.70, abs=0.05)
+    # the RHF singlet's degenerate pi* pair gives MP2 a zero denominator: that rung fails, never NaN "ok"
+    for rung in o2.ladder.rungs:
+        assert rung.status != "ok" or math.isfinite(rung.energy_ha), rung
 
 
 @pytest.mark.slow          # the O2 ladder (SCF, CC, CASCI) takes ~10 s

@@ -3,7 +3,8 @@
 ``benchsuite run`` in a subprocess on h2 and heh-cation (STO-3G) with two
 built-in methods and the demo plugin from ``examples/tallowick`` (by
 ``module:attr`` on PYTHONPATH, so it needs no install), into a private
-database and cache.  About five seconds.
+database and cache.  About five seconds; ``scan_run`` adds LiH and six
+points of the H2 curve (about twenty seconds).
 """
 
 from __future__ import annotations
@@ -30,13 +31,15 @@ class RealRun:
     output: str
 
 
-@pytest.fixture(scope="session")
-def real_run(tmp_path_factory) -> RealRun:
-    work = tmp_path_factory.mktemp("real-run")
+#: Six points of the H2 curve (STO-3G), for the report's curve section and its screenshots.
+SCAN_POINTS = tuple(f"h2-scan@{r}" for r in ("0.5", "0.7", "1", "1.4", "2", "3"))
+
+
+def _run(work: Path, cases) -> RealRun:
     db = work / "results.sqlite"
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(
         [str(REPO / "examples" / "tallowick"), str(REPO)] + [p for p in [os.environ.get("PYTHONPATH")] if p]))
-    cmd = [sys.executable, "-m", "benchsuite.cli", "run", "--case", *CASES, "--db", str(db),
+    cmd = [sys.executable, "-m", "benchsuite.cli", "run", "--case", *cases, "--db", str(db),
            "--cache-dir", str(work / "cache"), "--workers", "2"]
     for m in METHODS:
         cmd += ["--method", m]
@@ -48,3 +51,14 @@ def real_run(tmp_path_factory) -> RealRun:
     with ResultStore.open(db, create=False) as store:
         run_id = store.resolve_run_id("latest")
     return RealRun(db, run_id, proc.returncode, output)
+
+
+@pytest.fixture(scope="session")
+def real_run(tmp_path_factory) -> RealRun:
+    return _run(tmp_path_factory.mktemp("real-run"), CASES)
+
+
+@pytest.fixture(scope="session")
+def scan_run(tmp_path_factory) -> RealRun:
+    """The real run plus LiH and six points of the H2 curve: every section of the report has content."""
+    return _run(tmp_path_factory.mktemp("scan-run"), CASES + ("lih",) + SCAN_POINTS)

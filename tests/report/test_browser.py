@@ -5,6 +5,10 @@ executable (``$BENCHSUITE_CHROMIUM``, else ``chromium`` on PATH, else
 ``/usr/bin/chromium``).  Without Playwright or Chromium these tests skip with
 the reason, unless ``BENCHSUITE_REQUIRE_BROWSER=1`` (set by ``.ci/run``), in
 which case they fail.
+
+Screenshots of the report (the masthead with the accuracy matrix, a curve) go
+to ``$BENCHSUITE_SCREENSHOTS`` when it names a directory (the committed ones in
+``reports/screenshots/`` are made so), else to the test's temporary directory.
 """
 
 from __future__ import annotations
@@ -91,25 +95,42 @@ def test_real_report_in_chromium(browser, real_run, registry, tmp_path):
     w.open(report)
     assert len(w.visible_rows()) == len(rows)
     assert w.page.locator("#filter-status").inner_text() == f"Result rows shown: {len(rows)} of {len(rows)}."
+    assert w.page.locator("table.matrix td.cell[data-verdict]").count() == len(rows)
+    decision = w.page.locator("aside.decision").inner_text()
+    assert "GATE FAILED" in decision and "exit code 1" in decision and real_run.returncode == 1
 
-    w.page.select_option("#filter-verdict", "not-pass")
+    w.page.click("label:has(#show-not-pass)")
     shown = w.visible_rows()
     assert len(shown) == len(failing)
     assert {row.get_attribute("data-verdict") for row in shown} == {r.verdict for r in failing}
     for row in shown:
         text = row.locator("span.verdict").inner_text()
         assert "PASS" not in text and ("FAIL" in text or "BELOW EXACT" in text)
+    assert w.page.locator("table.matrix td.cell.dim").count() == len(rows) - len(failing)   # faded, not hidden
 
-    w.page.select_option("#filter-verdict", "fail")
+    w.page.click("label:has(#show-fail)")
     assert len(w.visible_rows()) == sum(r.verdict == "fail" for r in rows)
-    w.page.select_option("#filter-verdict", "all")
+    w.page.click("label:has(#show-all)")
     w.page.select_option("#filter-tag", "cation")
     assert {row.get_attribute("data-case") for row in w.visible_rows()} == {"heh-cation"}
     w.page.click("#filter-reset")
-    assert len(w.visible_rows()) == len(rows)
+    assert len(w.visible_rows()) == len(rows) and w.page.locator("table.matrix td.cell.dim").count() == 0
 
-    # sorting: the error column of the first method table, ascending then descending
-    table = w.page.locator("table.results").first
+    # a matrix cell leads to its task's row
+    w.page.locator("table.matrix td.cell a").first.click()
+    target = w.page.evaluate("location.hash").lstrip("#")
+    assert target.startswith("task-") and w.page.locator(f"tr#{target}").is_visible()
+
+    _check_sorting(w.page.locator("table.results").first)
+    w.page.screenshot(path=str(tmp_path / "report.png"), full_page=True)
+    assert (tmp_path / "report.png").stat().st_size > 10_000
+    _check_print(w, rows, tmp_path)
+    assert w.errors == [] and w.dialogs == []
+    assert w.others(report) == []
+
+
+def _check_sorting(table) -> None:
+    """The error column of a method table sorts ascending, then descending."""
     header = table.locator("thead th", has_text="error / mHa")
     column = [h.inner_text() for h in table.locator("thead th").all()].index(header.inner_text())
     header.locator("button").click()
@@ -121,17 +142,47 @@ def test_real_report_in_chromium(browser, real_run, registry, tmp_path):
     header.locator("button").click()
     assert errors() == sorted(errors(), reverse=True)
 
-    w.page.screenshot(path=str(tmp_path / "report.png"), full_page=True)
-    assert (tmp_path / "report.png").stat().st_size > 10_000
 
-    # on paper: no controls, every row, verdicts still spelled out
+def _check_print(w, rows, tmp_path) -> None:
+    """On paper: no controls, every row, verdicts still spelled out."""
     w.page.emulate_media(media="print")
     assert not w.page.locator("#controls").is_visible() and len(w.visible_rows()) == len(rows)
     assert w.page.locator("table.results span.verdict:visible").count() == len(rows)
     w.page.pdf(path=str(tmp_path / "report.pdf"))
     assert (tmp_path / "report.pdf").read_bytes().startswith(b"%PDF")
-    assert w.errors == [] and w.dialogs == []
-    assert w.others(report) == []
+    w.page.emulate_media(media="screen")
+
+
+def _screenshot_dir(tmp_path: Path) -> Path:
+    out = Path(os.environ.get("BENCHSUITE_SCREENSHOTS") or tmp_path)
+    out.mkdir(parents=True, exist_ok=True)
+    return out
+
+
+def test_matrix_and_curves_look_right_and_are_captured(browser, scan_run, registry, tmp_path):
+    """The report of a run with a scan: every result row one line high whatever its tags and note, the
+    matrix one cell per task in molecule groups, the curve drawn; screenshots of both."""
+    with ResultStore.open(scan_run.db, create=False) as store:
+        rows = store.results(scan_run.run_id)
+        report = write_report(store, scan_run.run_id, tmp_path / "scan.html", registry,
+                              title="Tallowick 0.9.0rc1 beside the built-in methods: H2 curve, HeH+, LiH")
+    w = Watched(browser)
+    w.page.set_viewport_size({"width": 1360, "height": 1000})
+    w.open(report)
+    assert w.page.locator("table.matrix td.cell[data-verdict]").count() == len(rows)
+    groups = [g.inner_text().split("\n")[0] for g in w.page.locator("table.matrix th.mol").all()]
+    assert groups == ["H2", "HHe+", "HLi"]            # subscripts and superscripts as text
+    for table in w.page.locator("table.results").all():
+        heights = table.evaluate("t => Array.from(t.tBodies[0].rows, r => r.getBoundingClientRect().height)")
+        assert max(heights) - min(heights) < 4.0, heights          # tags and notes never add a line to a row
+    assert w.page.locator("#curves svg").count() == 1
+    shots = _screenshot_dir(tmp_path)
+    w.page.screenshot(path=str(shots / "report-accuracy-matrix.png"),
+                      clip={"x": 0, "y": 0, "width": 1360, "height": 1000})
+    w.page.locator("#curves figure").first.screenshot(path=str(shots / "report-curve-h2.png"))
+    for name in ("report-accuracy-matrix.png", "report-curve-h2.png"):
+        assert (shots / name).stat().st_size > 20_000
+    assert w.errors == [] and w.others(report) == []
 
 
 def test_escaping_holds_in_the_browser(browser, tmp_path):
@@ -145,6 +196,7 @@ def test_escaping_holds_in_the_browser(browser, tmp_path):
     assert w.page.evaluate("document.scripts.length") == 1
     assert w.page.evaluate("document.querySelectorAll('img, b').length") == 0
     assert w.page.locator("h3", has_text=EVIL_METHOD).count() == 1
+    assert w.page.locator("table.matrix th.meth", has_text=EVIL_METHOD).count() == 1
     assert w.dialogs == [] and w.errors == [] and w.others(path) == []
 
 
@@ -156,7 +208,7 @@ def test_30_cases_by_3_methods_loads(browser, tmp_path, capsys):
     seconds = w.open(path)
     nav_ms = w.page.evaluate("performance.getEntriesByType('navigation')[0].loadEventEnd")
     assert len(w.visible_rows()) == 90
-    w.page.select_option("#filter-verdict", "not-pass")
+    w.page.click("label:has(#show-not-pass)")
     assert len(w.visible_rows()) == sum(r.verdict != "pass" for r in rows)
     assert w.errors == [] and w.others(path) == []
     with capsys.disabled():

@@ -200,3 +200,71 @@ def test_markdown_and_csv_escape_hostile_values():
         assert not any(c[:1] in "=+-@" for c in cells), cells        # no spreadsheet formula
         assert "'=HYPERLINK(\"http://x\")" in cells and "'@SUM(A1)" in cells
     assert frame["circuit depth"].tolist() == [str(10**20)] * len(rows)
+
+
+# -- citable as it is: chemistry spelled as published, LaTeX that compiles ---------------------
+
+def _chemistry_rows(run):
+    """Rows of real registry cases: a cation, an open-shell triplet and a doublet, in two bases."""
+    return [make_row(run.run_id, "heh-cation", "uccsd-vqe", 0.3, published=PUBLISHED),
+            make_row(run.run_id, "o2-triplet", "uccsd-vqe", 2.1, basis="cc-pvdz"),
+            make_row(run.run_id, "oh", "uccsd-vqe", -0.2, basis="6-31g"),
+            make_row(run.run_id, "h2", "vqe 50% “naïve” → σ", None, status="error", message="worker died")]
+
+
+def test_molecules_bases_and_sources_need_no_editing(registry):
+    run = make_run(methods=("uccsd-vqe",))
+    rows = _chemistry_rows(run)
+    text, table = render_table(run, rows, "markdown", registry=registry)
+    lines = text.splitlines()
+    header = [c.strip() for c in re.split(r"(?<!\\)\|", lines[2])[1:-1]]
+    assert header[:3] == ["molecule", "case", "basis"]
+    assert "geometry source (bib key)" in header and "reference-energy source (bib keys)" in header
+    cells = {c[1].strip(): [x.strip() for x in c] for c in (re.split(r"(?<!\\)\|", ln)[1:-1] for ln in lines[4:])}
+    # Hill order from the registry, the charge and the multiplicity as superscripts (IUPAC Green Book, 3rd ed.
+    # 2007, sec. 2.10: charge number as a right superscript; the multiplicity 2S+1 as a left superscript of a
+    # term symbol -- common practice for a molecule's spin state in tables)
+    assert cells["heh-cation"][0] == "HHe⁺" and cells["o2-triplet"][0] == "³O₂" and cells["oh"][0] == "²HO"
+    assert cells["o2-triplet"][2] == "cc-pVDZ" and cells["oh"][2] == "6-31G" and cells["heh-cation"][2] == "STO-3G"
+    geometry, reference = header.index("geometry source (bib key)"), header.index("reference-energy source (bib keys)")
+    heh = cells["heh-cation"]
+    assert heh[geometry] == f"[@{registry.cases['heh-cation'].geometry_source}]"
+    assert heh[reference] == "[@szabo-ostlund-1996]" and cells["oh"][reference] == ""
+    assert table.keys[0] == registry.cases["heh-cation"].geometry_source
+
+
+def test_latex_compiles_as_it_is(registry, tmp_path):
+    """Every column, hostile and non-ASCII values included: a LaTeX engine if one is installed, the
+    pylatexenc parser if installed, and always the markup checker (tests/report/latex_check.py)."""
+    from tests.report import latex_check
+
+    run = make_run(methods=("uccsd-vqe",))
+    rows = _chemistry_rows(run) + _hostile_rows(run)
+    text, table = render_table(run, rows, "latex", ",".join(COLUMNS), registry)
+    tex = latex_check.document(text)
+    assert latex_check.markup_errors(tex) == []
+    assert r"${}^{3}\mathrm{O}_{2}$" in text and r"$\mathrm{H}\mathrm{He}^{+}$" in text and "cc-pVDZ" in text
+    assert r"vqe 50\% ``naive'' $\to$ $\sigma$" in text        # non-ASCII folded, specials escaped
+    parsed = latex_check.pylatexenc_errors(tex)
+    assert parsed in (None, [])
+    if latex_check.engine() is not None:
+        proc = latex_check.compile_with_engine(tex, tmp_path)
+        assert proc.returncode == 0, proc.stdout[-3000:]
+
+
+@pytest.mark.parametrize("broken, complaint", [
+    (r"a & b {c \\", "unclosed '{'"), (r"a & b} \\", "closes nothing"), (r"a & $x \\", "unclosed '$'"),
+    (r"50% & b \\", "does not end"), (r"a_b & c \\", "unescaped '_'"), (r"\input{x} & b \\", "unknown command"),
+    (r"a & b & c \\", "3 cells"), ("é & b \\\\", "non-ASCII"), (r"\end{table} & b \\", "closes tabular"),
+])
+def test_markup_checker_rejects_what_a_compiler_rejects(broken, complaint):
+    """The checker is not vacuous: each broken row is found (an unescaped % turns the rest of its row,
+    the row end included, into a comment)."""
+    from tests.report.latex_check import markup_errors
+
+    template = "\n".join([r"\begin{table}", r"\begin{tabular}{ll}", r"\toprule", r"a & b \\", "ROW",
+                          r"\bottomrule", r"\end{tabular}", r"\end{table}"])
+    assert markup_errors(template.replace("ROW", r"c \& {d} & $-1.5$ \\")) == []
+    errors = markup_errors(template.replace("ROW", broken))
+    assert errors, broken
+    assert any(complaint in e for e in errors), errors
