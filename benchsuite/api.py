@@ -39,8 +39,9 @@ from benchsuite.registry.registry import SuiteEntry
 from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, Judgement
 
 __all__ = ["Assessment", "Encoding", "ExportedProblem", "Judgement", "PreparedProblem", "References", "StoredRun",
-           "assess", "build_problem", "compare", "export_problem", "judge", "list_runs", "load_case", "load_registry",
-           "load_run", "load_suite", "open_store", "references", "run_methods", "score_external", "select",
+           "assess", "build_problem", "case_records", "compare", "export_problem", "export_run", "judge",
+           "list_runs", "load_case", "load_registry", "load_run", "load_suite", "method_records", "open_store",
+           "reference_ladders", "references", "run_methods", "score_external", "select", "solve",
            "DEFAULT_THRESHOLD_MHA"]
 
 _REGISTRY: Registry | None = None
@@ -84,10 +85,43 @@ def select(suite: str | None = None, cases: list[str] | None = None, basis: str 
     return reg.named_entries(list(cases), basis)
 
 
+def case_record(case, basis_label: str) -> dict:
+    """One case as plain data (``benchsuite cases --format json``): names, charge, multiplicity,
+    basis, orbital space, tags, geometry source, scan parent and file."""
+    space = ("CAS({}e, {}o)".format(case.active_space.electrons, case.active_space.orbitals)
+             if case.active_space else "frozen core" if case.frozen_core else "all-electron")
+    return {"name": case.name, "title": case.title, "formula": case.formula,
+            "charge": case.charge, "multiplicity": case.multiplicity, "n_electrons": case.n_electrons,
+            "basis": basis_label, "bases": [b.label for b in case.bases], "space": space,
+            "tags": list(case.tags), "geometry_source": case.geometry_source,
+            "scan": case.scan_parent, "file": str(case.path)}
+
+
+def case_records(registry: Registry | None = None, suite: str | None = None) -> list[dict]:
+    """:func:`case_record` of every case (by name) or of a suite's entries (in its order)."""
+    reg = registry or load_registry()
+    if suite:
+        return [case_record(e.case, e.basis.label) for e in reg.suite_entries(suite)]
+    return [case_record(c, c.default_basis.label) for _, c in sorted(reg.cases.items())]
+
+
+def method_records() -> tuple[list[dict], list[dict]]:
+    """Every usable method (name, description, variational, stochastic, options) and every plugin
+    that failed to load (name, origin, reason)."""
+    from benchsuite.methods.discovery import all_methods
+
+    methods, failures = all_methods()
+    records = [{"name": m.name, "description": getattr(m, "description", ""),
+                "variational": bool(getattr(m, "variational", False)),
+                "stochastic": bool(getattr(m, "stochastic", False)),
+                "options": [o.describe() for o in m.options]} for m in methods]
+    return records, [dict(f.__dict__) for f in failures]
+
+
 # -- the problem and its references ---------------------------------------------------
 
 def build_problem(case: str | Case, basis: str | None = None, encoding: str = "jordan-wigner",
-                  ordering: str = "interleaved", taper: bool = False, two_qubit_reduction: bool = False,
+                  ordering: str = "interleaved", taper: bool = False, drop_spin_parity_qubits: bool = False,
                   cache_dir: str | Path | None = None, seed: int = 0,
                   registry: Registry | None = None) -> PreparedProblem:
     """The problem a method under test sees, exactly as the gate builds it.
@@ -95,7 +129,7 @@ def build_problem(case: str | Case, basis: str | None = None, encoding: str = "j
     ``case`` is a name or a :class:`Case`; ``basis`` a label of the case (default its first).
     ``encoding`` is jordan-wigner, bravyi-kitaev or parity; ``ordering`` interleaved
     (mode 2p = orbital p alpha) or blocked; ``taper`` Z2-tapers in the Hartree-Fock sector;
-    ``two_qubit_reduction`` (parity + blocked only).  The reference ladder is computed (or read
+    ``drop_spin_parity_qubits`` (parity + blocked only).  The reference ladder is computed (or read
     from the cache at ``cache_dir``, default ``$BENCHSUITE_CACHE`` or ``.benchsuite/cache``).
     """
     from benchsuite.chem.cache import DiskCache, default_cache_dir
@@ -103,9 +137,45 @@ def build_problem(case: str | Case, basis: str | None = None, encoding: str = "j
 
     if isinstance(case, str):
         case = load_case(case, registry)
-    enc = Encoding(encoding, ordering, taper, two_qubit_reduction).check()
+    enc = Encoding(encoding, ordering, taper, drop_spin_parity_qubits).check()
     cache = DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir())
     return _build(case, case.basis(basis), enc, cache=cache, seed=seed)
+
+
+def reference_ladders(cases: list[str] = (), suite: str | None = None, basis: str | None = None,
+                      scf: str | None = None, max_determinants: int | None = None,
+                      cache_dir: str | Path | None = None, registry: Registry | None = None,
+                      no_cache: bool = False):
+    """The reference ladders of case names (or a suite), yielded one by one as each is computed.
+
+    Every (case, basis) is checked (orbital space, SCF kind) before the first SCF; ``scf`` is rhf,
+    rohf or uhf (None: RHF for closed shells, ROHF for open ones); FCI/CASCI is skipped above
+    ``max_determinants`` (default 5,000,000); ``no_cache`` neither reads nor writes the cache.
+    """
+    from benchsuite.chem.cache import DiskCache, default_cache_dir
+    from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
+    from benchsuite.chem.space import prepare
+
+    reg = registry or load_registry()
+    if suite and cases:
+        raise InputError("give case names or --suite, not both", field="CASE")
+    if not suite and not cases:
+        raise InputError("name a case (see `benchsuite cases`) or give --suite", field="CASE")
+    entries = reg.suite_entries(suite, basis) if suite else reg.named_entries(list(cases), basis)
+    max_det = max_determinants or DEFAULT_MAX_DETERMINANTS
+    if max_det < 1:
+        raise InputError("must be positive", field="--max-determinants")
+    for e in entries:                   # validate everything before computing anything
+        prepare(e.case, e.basis, scf)
+    return _ladders(entries, DiskCache(None if no_cache else str(cache_dir or default_cache_dir())), scf,
+                    max_det)
+
+
+def _ladders(entries, cache, scf, max_det):
+    from benchsuite.chem.ladder import reference_ladder
+
+    for e in entries:
+        yield reference_ladder(e.case, e.basis, cache=cache, scf_kind=scf, max_determinants=max_det)
 
 
 @dataclass(frozen=True)
@@ -142,6 +212,39 @@ def references(problem: PreparedProblem) -> References:
                       primary_status="missing" if primary is None else primary.status,
                       uncertainty_ha=getattr(primary, "uncertainty_ha", None) if ok else None,
                       rungs={r.method: r.energy_ha for r in lad.rungs}, published=list(lad.published), ladder=lad)
+
+
+# -- one method on one case ------------------------------------------------------------
+
+def solve(case: str | Case, method: str, basis: str | None = None, encoding: Encoding = Encoding(),
+          options: dict[str, str] | None = None, seed: int = 0, timeout_s: float | None = None,
+          cache_dir: str | Path | None = None, no_cache: bool = False, registry: Registry | None = None):
+    """Run one method (a spec as on the command line) on one case in an isolated worker, beside its
+    FCI/CASCI reference; returns ``(PreparedProblem, runner.Outcome)``.
+
+    Options and ``timeout_s`` (seconds, > 0) are checked before any work; the outcome's status is
+    the gate's (``ok``, ``below-exact``, ``wrong-state``, ``error``, ``timeout``, ``invalid``).
+    """
+    from benchsuite.chem.cache import DiskCache, default_cache_dir
+    from benchsuite.methods.base import resolve_options
+    from benchsuite.methods.discovery import resolve_method
+    from benchsuite.methods.problem import build_problem as _build
+    from benchsuite.runner import Outcome, execute
+
+    case = load_case(case, registry) if isinstance(case, str) else case
+    method_obj, failure = resolve_method(method)
+    if method_obj is not None:
+        resolve_options(method_obj, dict(options or {}))      # reject bad options before any work
+    if timeout_s is not None and timeout_s <= 0:
+        raise InputError("must be positive", field="--timeout-s")
+    cache = DiskCache(None if no_cache else str(cache_dir or default_cache_dir()))
+    prepared = _build(case, basis, encoding.check(), cache=cache, seed=seed, time_budget_s=timeout_s)
+    if method_obj is None:
+        return prepared, Outcome(method=method, status="error", message=f"plugin unusable: {failure.reason}")
+    ref = prepared.reference
+    return prepared, execute(method_obj, prepared.problem, options or {}, timeout_s=timeout_s,
+                             exact_ha=None if ref is None else ref.energy_ha,
+                             sector_ha=None if ref is None else ref.sector_lowest_ha)
 
 
 # -- verdicts ------------------------------------------------------------------------
@@ -262,22 +365,20 @@ def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str
     per task (columns as ``benchsuite export``: ``energy_ha``, ``error_mha``, ``verdict``, ...);
     ``frame.attrs`` holds ``run_id``, ``passed`` and the decision's ``reasons``.
     """
-    from benchsuite.chem.cache import default_cache_dir
-    from benchsuite.gate.execute import Execution, Outputs, execute_plan
-    from benchsuite.gate.plan import plan_run
-    from benchsuite.store.export import results_dataframe
-
     from dataclasses import asdict
+
+    from benchsuite.gate.request import RunRequest, start_run
+    from benchsuite.store.export import results_dataframe
 
     items = [f"{m}.{k}={v}" for m, opts in (options or {}).items() for k, v in opts.items()]
     settings = RunSettings(basis=basis, threshold_mha=threshold_mha, timeout_s=timeout_s,
                            encoding=asdict(encoding))
-    plan = plan_run(load_registry(), suite, None if suite else list(cases or []), list(methods), items,
-                    settings, seed, workers)
-    with open_store(db, create=True) as store:
-        base = store.resolve_run_id(baseline) if baseline else None
-        ex = Execution(workers=workers, cache_dir=str(cache_dir or default_cache_dir()), baseline_id=base)
-        decision, run, _ = execute_plan(store, plan, ex, Outputs(), command="benchsuite.api.run_methods")
+    req = RunRequest(suite=suite, cases=None if suite else list(cases or []), methods=list(methods),
+                     option_items=items, settings=settings, seed=seed, workers=workers,
+                     db=None if db is None else Path(db), cache_dir=None if cache_dir is None else Path(cache_dir),
+                     baseline=baseline, command="benchsuite.api.run_methods", registry=load_registry())
+    decision, run, _ = start_run(req)
+    with open_store(db) as store:
         frame = results_dataframe(store, run.run_id)
     frame.attrs.update(run_id=run.run_id, passed=decision.passed, reasons=list(decision.reasons))
     return frame
@@ -299,6 +400,15 @@ def list_runs(db: str | Path | None = None, limit: int | None = None) -> list:
 
     with open_store(db) as store:
         return run_summaries(store, limit)
+
+
+def export_run(run_id: str, fmt: str = "csv", out: str | Path | None = None, db: str | Path | None = None):
+    """Write a stored run's rows as ``csv``, ``parquet`` or ``json`` to ``out`` (default standard
+    output; parquet needs a file); returns the path written or None."""
+    from benchsuite.store.export import export_run as write
+
+    with open_store(db) as store:
+        return write(store, store.resolve_run_id(run_id), fmt, out)
 
 
 @dataclass(frozen=True)
@@ -355,7 +465,7 @@ class ExportedProblem:
 
 
 def export_problem(case: str | Case, basis: str | None = None, *, encoding: str = "jordan-wigner",
-                   ordering: str = "interleaved", taper: bool = False, two_qubit_reduction: bool = False,
+                   ordering: str = "interleaved", taper: bool = False, drop_spin_parity_qubits: bool = False,
                    fmt: str = "pauli-json", path: str | Path | None = None, cache_dir: str | Path | None = None,
                    registry: Registry | None = None) -> ExportedProblem:
     """The exact problem a method sees as ``fcidump``, ``pauli-json`` or ``openfermion`` text, with its
@@ -376,7 +486,7 @@ def export_problem(case: str | Case, basis: str | None = None, *, encoding: str 
             raise InputError("an openfermion file must end in .data (OpenFermion's load_operator appends it)",
                              path, "--out")
     case_obj = load_case(case, registry) if isinstance(case, str) else case
-    prepared = build_problem(case_obj, basis, encoding, ordering, taper, two_qubit_reduction, cache_dir,
+    prepared = build_problem(case_obj, basis, encoding, ordering, taper, drop_spin_parity_qubits, cache_dir,
                              registry=registry)
     cache = DiskCache(str(cache_dir) if cache_dir is not None else default_cache_dir())
     fp = problem_fingerprint(case_obj, case_obj.basis(basis), prepared.encoding, cache)

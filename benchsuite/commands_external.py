@@ -1,6 +1,6 @@
 """Commands for work done outside benchsuite: ``benchsuite problem`` and ``benchsuite score``.
 
-``benchsuite problem CASE [--basis B] [--encoding E --ordering O --taper --two-qubit-reduction]
+``benchsuite problem CASE [--basis B] [--encoding E --ordering O --taper --drop-spin-parity-qubits]
 --format fcidump|pauli-json|openfermion -o FILE`` writes the exact problem a method sees, with its
 fingerprint (inside the JSON, else in ``FILE.fingerprint.json``); ``openfermion`` files must end in
 ``.data`` (OpenFermion's ``load_operator`` appends it).  Exit 0, or 2 on bad input.
@@ -35,14 +35,15 @@ def add_problem(sub) -> None:
 
     p = sub.add_parser("problem", help="write a case's exact problem (FCIDUMP, Pauli JSON, OpenFermion) "
                                        "with its fingerprint")
-    p.add_argument("case", metavar="CASE")
+    p.add_argument("case", metavar="CASE", help="case name (see `benchsuite cases`)")
     p.add_argument("--basis", default=None, help="basis label (default the case's first)")
     p.add_argument("--encoding", default="jordan-wigner", help="jordan-wigner, bravyi-kitaev or parity")
     p.add_argument("--ordering", default="interleaved", help="interleaved or blocked")
     p.add_argument("--taper", action="store_true", help="Z2-taper in the Hartree-Fock sector")
-    p.add_argument("--two-qubit-reduction", action="store_true", help="parity + blocked only")
-    p.add_argument("--format", choices=FORMATS, default="pauli-json")
-    p.add_argument("-o", "--out", type=Path, required=True, metavar="FILE")
+    p.add_argument("--drop-spin-parity-qubits", action="store_true", help="parity + blocked only")
+    p.add_argument("--format", choices=FORMATS, default="pauli-json",
+                   help=f"file format: {', '.join(FORMATS)} (default pauli-json)")
+    p.add_argument("-o", "--out", type=Path, required=True, metavar="FILE", help="the file to write")
     _add_sources(p)
 
 
@@ -51,7 +52,7 @@ def run_problem(args) -> int:
 
     registry = api.load_registry(args.cases, args.case_file)
     result = api.export_problem(args.case, args.basis, encoding=args.encoding, ordering=args.ordering,
-                                taper=args.taper, two_qubit_reduction=args.two_qubit_reduction, fmt=args.format,
+                                taper=args.taper, drop_spin_parity_qubits=args.drop_spin_parity_qubits, fmt=args.format,
                                 path=args.out, cache_dir=args.cache_dir, registry=registry)
     print(f"wrote {', '.join(str(p) for p in result.paths)}: {args.case} ({result.export.format}), "
           f"fingerprint {result.export.fingerprint.token}")
@@ -66,17 +67,23 @@ def add_score(sub) -> None:
     p.add_argument("--format", choices=("csv", "json", "parquet"), default=None, help="default: from the suffix")
     p.add_argument("--db", type=Path, default=None, help="results database (default .benchsuite/results.sqlite)")
     p.add_argument("--threshold-mha", type=float, default=None, help="override every case's threshold (mHa)")
-    p.add_argument("--confidence", type=float, default=0.95)
-    p.add_argument("--multiple-testing", choices=MULTIPLE_TESTING, default="holm")
-    p.add_argument("--allow-inconclusive", action="store_true")
-    p.add_argument("--require-converged", action="store_true")
+    p.add_argument("--confidence", type=float, default=0.95,
+                   help="confidence for stochastic verdicts (default 0.95)")
+    p.add_argument("--multiple-testing", choices=MULTIPLE_TESTING, default="holm",
+                   help="control of the run's stochastic fail claims: holm (default) or bh")
+    p.add_argument("--allow-inconclusive", action="store_true", help="inconclusive does not fail the gate")
+    p.add_argument("--require-converged", action="store_true",
+                   help="a row marked not converged fails the gate (verdict unconverged)")
     p.add_argument("--suite", default=None, help="take the suite's threshold where a case has none")
     p.add_argument("--baseline", default=None, metavar="RUN_ID", help="compare with this run (id, prefix, latest)")
-    p.add_argument("--max-increase-mha", type=float, default=None)
-    p.add_argument("--allow-new", action="store_true")
-    p.add_argument("--report", type=Path, default=None, metavar="FILE.html")
-    p.add_argument("--json", type=Path, default=None, metavar="FILE.json")
-    p.add_argument("--junit", type=Path, default=None, metavar="FILE.xml")
+    p.add_argument("--max-increase-mha", type=float, default=None,
+                   help="|error| growth counted as a regression (default 0.1 mHa)")
+    p.add_argument("--allow-new", action="store_true",
+                   help="tasks absent from the baseline do not fail the comparison")
+    p.add_argument("--report", type=Path, default=None, metavar="FILE.html", help="write the one-file HTML report")
+    p.add_argument("--json", type=Path, default=None, metavar="FILE.json",
+                   help="write the run record and every result")
+    p.add_argument("--junit", type=Path, default=None, metavar="FILE.xml", help="write JUnit XML")
     _add_sources(p)
 
 

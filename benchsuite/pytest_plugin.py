@@ -40,8 +40,9 @@ from pathlib import Path
 
 import pytest
 
+from benchsuite.defaults import DEFAULT_SUITE
+
 MARKER = "benchsuite_cases"
-DEFAULT_SUITE = "smoke"
 _SPOOL_KEY = "benchsuite_spool"
 
 
@@ -230,7 +231,7 @@ def bs_problem(request, bs_case):
     state = _state(request.config)
     enc = state.encoding
     return api.build_problem(bs_case.case, bs_case.basis.label, enc.name, enc.ordering, enc.taper,
-                             enc.two_qubit_reduction, cache_dir=state.cache_dir)
+                             enc.drop_spin_parity_qubits, cache_dir=state.cache_dir)
 
 
 @pytest.fixture

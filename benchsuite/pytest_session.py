@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from benchsuite.pytest_plugin import DEFAULT_SUITE
+from benchsuite.defaults import DEFAULT_SUITE
 
 
 def solver_provenance(config) -> dict:

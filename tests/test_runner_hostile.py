@@ -285,11 +285,11 @@ def test_dask_path_worker_contains_the_plugin_too(h2):
     """The fresh-interpreter worker that Dask jobs use: same capture, same group kill on timeout."""
     import pickle
 
-    from benchsuite.runner import _subprocess_work
+    from benchsuite.runner import DirectJob, _subprocess_work
 
     def job(attr):
         method, _ = discovery.resolve_method(f"{PLUGINS}:{attr}")
-        return pickle.dumps(("direct", method, h2.problem, {}))
+        return pickle.dumps(DirectJob(method, h2.problem, {}))
 
     flood = _subprocess_work(job("FloodsStdout"), 60.0, 2048)
     assert flood["status"] == "ok" and flood["captured_output"].rstrip().endswith("C-level line from printf")

@@ -71,8 +71,11 @@ def new_run_record(plan: RunPlan, run_id: str, command: str):
         run_id=run_id, started_at=utc_now(), command=command, suite=plan.suite_name, cases=plan.case_names,
         methods=list(plan.methods), options={m: dict(o) for m, o in plan.options.items()},
         encoding=plan.encoding.label,
-        threshold_mha=s.threshold_mha if s.threshold_mha is not None else DEFAULT_THRESHOLD_MHA,
-        threshold_source="--threshold-mha" if s.threshold_mha is not None else THRESHOLD_SOURCE,
+        threshold_mha=s.threshold_mha if s.threshold_mha is not None else (
+            s.default_threshold_mha if s.default_threshold_mha is not None else DEFAULT_THRESHOLD_MHA),
+        threshold_source="--threshold-mha" if s.threshold_mha is not None else (
+            s.default_threshold_source or THRESHOLD_SOURCE if s.default_threshold_mha is not None
+            else THRESHOLD_SOURCE),
         seed=plan.seed, packages=package_versions(), git=git_state(Path.cwd()),
         plugin_git=plugin_provenance(list(plan.methods), builtin_names=builtin_names()),
         machine=machine_info(), summary={"settings": s.to_dict()})
@@ -113,8 +116,9 @@ def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=
         tasks = plan.tasks
     else:
         run = resumed
-        missing = set(store.missing_tasks(run.run_id, [t.key for t in plan.tasks]))
-        tasks = [t for t in plan.tasks if t.key in missing]
+        tasks = stored_keys(plan.tasks, run.encoding)
+        missing = set(store.missing_tasks(run.run_id, [t.key for t in tasks]))
+        tasks = [t for t in tasks if t.key in missing]
     progress = progress_factory(len(tasks)) if progress_factory else None
     try:
         run_tasks(store, run.run_id, plan, tasks, ex, progress)
@@ -132,6 +136,22 @@ def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=
     run = store.get_run(run.run_id)
     write_outputs(store, run, rows, decision, outputs, registry)
     return decision, run, rows
+
+
+def stored_keys(tasks, stored_label: str) -> list:
+    """The tasks keyed as the stored run keyed them: a run stored before the spin-parity option's
+    rename used the old encoding label (``+2qr``) in its task keys; its resumed rows carry the
+    current label but keep the run's keys, so no stored task is run twice."""
+    from dataclasses import replace
+
+    from benchsuite.store.records import task_key
+
+    from benchsuite.qubit.encodings import current_label
+
+    if not tasks or stored_label == tasks[0].encoding.label or current_label(stored_label) != tasks[0].encoding.label:
+        return list(tasks)
+    return [replace(t, key=task_key(t.case.name, t.basis.label, stored_label, t.method, t.options))
+            for t in tasks]
 
 
 def finalise(store, run_id: str, plan: RunPlan) -> list:

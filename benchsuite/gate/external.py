@@ -11,8 +11,8 @@ case                yes       registry case name (a scan point as ``h2-scan@1.4`
 basis               yes       a basis label of that case
 space               yes       the orbital space as benchsuite labels it (``frozen core 1 (4e,
                               5o)``) or just its ``(Ne, Mo)`` part
-encoding            yes       ``jordan-wigner/interleaved``, ``parity+2qr/blocked``,
-                              ``bravyi-kitaev+tapered/interleaved`` ... (name, ``+2qr``,
+encoding            yes       ``jordan-wigner/interleaved``, ``parity+sp-dropped/blocked``,
+                              ``bravyi-kitaev+tapered/interleaved`` ... (name, ``+sp-dropped`` (old: ``+2qr``),
                               ``+tapered``, ``/ordering``; no ordering means interleaved)
 energy_ha           yes       total energy in hartree (nuclear repulsion and core included)
 method              yes       the method's label (the task's method in every output)
@@ -66,6 +66,7 @@ from pathlib import Path
 from benchsuite.constants import HARTREE_EV, HARTREE_KCAL_MOL
 from benchsuite.errors import InputError
 from benchsuite.methods.problem import Encoding
+from benchsuite.qubit.encodings import DROP_LABEL, LEGACY_DROP_LABEL
 
 REQUIRED = ("case", "basis", "space", "encoding", "energy_ha", "method")
 OPTIONAL = ("stderr_ha", "shots", "method_version", "device", "code", "date", "fingerprint", "converged",
@@ -249,14 +250,16 @@ def cell_flag(value, default: bool) -> bool:
 
 
 def parse_encoding(text: str) -> Encoding:
-    """``name[+2qr][+tapered][/ordering]`` (as :attr:`Encoding.label` writes it) -> a checked Encoding."""
+    """``name[+sp-dropped][+tapered][/ordering]`` (as :attr:`Encoding.label` writes it; the label
+    ``+2qr`` written before the spin-parity option's rename is read too) -> a checked Encoding."""
     head, _, ordering = text.strip().lower().partition("/")
     name, *extras = head.split("+")
-    unknown = [e for e in extras if e not in ("2qr", "tapered")]
+    known = (DROP_LABEL, LEGACY_DROP_LABEL, "tapered")
+    unknown = [e for e in extras if e not in known]
     if unknown:
-        raise CellError(f"unknown reduction {unknown[0]!r} (known: 2qr, tapered)")
+        raise CellError(f"unknown reduction {unknown[0]!r} (known: {DROP_LABEL}, tapered)")
     try:
-        return Encoding(name, ordering or "interleaved", "tapered" in extras, "2qr" in extras).check()
+        return Encoding.from_label(f"{head}/{ordering or 'interleaved'}").check()
     except InputError as exc:
         raise CellError(exc.detail) from None
 

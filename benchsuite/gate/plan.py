@@ -32,7 +32,9 @@ class RunSettings:
     """How a run is executed and judged; stored with the run so that ``--resume`` restores it.
 
     ``threshold_mha`` is the command-line override (None: case, then suite, then
-    1 kcal/mol).  ``timeout_s`` / ``max_memory_mb`` per method task: None means the
+    the project default, then 1 kcal/mol); ``default_threshold_mha`` / ``default_threshold_source`` are
+    the project default (``[tool.benchsuite]`` or ``$BENCHSUITE_THRESHOLD_MHA``, see
+    :mod:`benchsuite.defaults`) that replaces 1 kcal/mol where neither case nor suite sets one.  ``timeout_s`` / ``max_memory_mb`` per method task: None means the
     runner's defaults (3600 s, 4096 MiB).  ``multiple_testing`` is ``holm`` (family-wise error rate of the
     run's stochastic fail claims) or ``bh`` (false-discovery rate).
     """
@@ -50,6 +52,8 @@ class RunSettings:
     cases: tuple[str, ...] = ()
     case_file: tuple[str, ...] = ()
     encoding: dict = field(default_factory=lambda: asdict(Encoding()))
+    default_threshold_mha: float | None = None
+    default_threshold_source: str | None = None
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -62,15 +66,18 @@ class RunSettings:
         return cls(**known)
 
 
-def threshold_for(case, suite, cli_threshold_mha: float | None) -> tuple[float, str]:
+def threshold_for(case, suite, cli_threshold_mha: float | None,
+                  default: tuple[float, str] | None = None) -> tuple[float, str]:
     """A case's pass threshold (mHa) and where it comes from: command line, then case, then suite,
-    then the default 1 kcal/mol."""
+    then ``default`` (the project's ``(threshold_mha, source)``), then 1 kcal/mol."""
     if cli_threshold_mha is not None:
         return cli_threshold_mha, "--threshold-mha"
     if case.threshold_mha is not None:
         return case.threshold_mha, f"case file {case.path}"
     if suite is not None and suite.threshold_mha is not None:
         return suite.threshold_mha, f"suite {suite.name}"
+    if default is not None and default[0] is not None:
+        return default
     return DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE
 
 
@@ -89,11 +96,17 @@ class RunPlan:
     tasks: list[Task]
     seed: int = 0
 
+    def _threshold(self, case) -> tuple[float, str]:
+        s = self.settings
+        default = None if s.default_threshold_mha is None else (s.default_threshold_mha,
+                                                                s.default_threshold_source or "project default")
+        return threshold_for(case, self.suite, s.threshold_mha, default)
+
     def threshold_for(self, case) -> float:
-        return threshold_for(case, self.suite, self.settings.threshold_mha)[0]
+        return self._threshold(case)[0]
 
     def threshold_source_for(self, case) -> str:
-        return threshold_for(case, self.suite, self.settings.threshold_mha)[1]
+        return self._threshold(case)[1]
 
 
 # -- checks of single values ---------------------------------------------------------
@@ -126,6 +139,7 @@ def check_output_path(path, flag: str) -> Path | None:
 
 def check_settings(s: RunSettings, seed: int, workers: int | None) -> None:
     for flag, value in (("--threshold-mha", s.threshold_mha), ("--timeout-s", s.timeout_s),
+                        ("threshold_mha", s.default_threshold_mha),
                         ("--reference-timeout-s", s.reference_timeout_s),
                         ("--max-determinants", s.max_determinants), ("--workers", workers),
                         ("--max-memory-mb", s.max_memory_mb)):
@@ -155,7 +169,7 @@ def plan_run(registry, suite_name: str | None, case_names: list[str] | None, met
         entries = [(e.case, e.basis) for e in registry.suite_entries(suite_name, settings.basis)]
     else:
         entries = [(e.case, e.basis) for e in registry.named_entries(case_names or [], settings.basis)]
-    encoding = Encoding(**settings.encoding).check()
+    encoding = Encoding.from_fields(settings.encoding).check()
     options = split_method_options(option_items, method_specs)
     methods = {}
     for spec in method_specs:
@@ -207,6 +221,4 @@ def stored_plan_arguments(run) -> dict:
 
 
 def _encoding_from_label(label: str) -> dict:
-    name_part, _, ordering = label.partition("/")
-    name, *extras = name_part.split("+")
-    return asdict(Encoding(name, ordering or "interleaved", "tapered" in extras, "2qr" in extras))
+    return asdict(Encoding.from_label(label))

@@ -111,12 +111,20 @@ def allocate_shots(total: int, sigmas: np.ndarray, how: str) -> np.ndarray:
     return shots
 
 
+def builtin_classes() -> dict:
+    """Every built-in method class by name, in listing order (the UCC family is in
+    :mod:`benchsuite.methods.ucc`); :mod:`benchsuite.methods.discovery` lists these first."""
+    from benchsuite.methods import ucc
+
+    classes = [HartreeFockBitstring, ExactSector, ucc.UCCSDVQE, ucc.UpCCGSDVQE, ucc.AdaptVQE, SampledEnergy]
+    return {cls.name: cls for cls in classes}
+
+
 def _sampleable(name: str) -> str | None:
     """a built-in method other than 'sampled'"""
-    from benchsuite.methods.discovery import builtin_names
-
-    if name == "sampled" or name not in builtin_names():
-        return f"must name a built-in method other than 'sampled' ({builtin_names()})"
+    names = list(builtin_classes())
+    if name == "sampled" or name not in names:
+        return f"must name a built-in method other than 'sampled' ({names})"
     return None
 
 
@@ -147,11 +155,9 @@ class SampledEnergy:
     stochastic = True
 
     def run(self, problem: QubitProblem, options: dict) -> MethodResult:
-        from benchsuite.methods.discovery import builtin_method
-
         if problem.n_qubits > options["max_qubits"]:
             raise ValueError(f"{problem.n_qubits} qubits exceed max_qubits={options['max_qubits']}")
-        source = builtin_method(options["state"])
+        source = builtin_classes()[options["state"]]()
         if source.name == self.name:
             raise ValueError("sampled cannot measure its own state")
         from benchsuite.methods.base import resolve_options

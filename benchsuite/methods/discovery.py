@@ -33,11 +33,9 @@ ENTRY_POINT_GROUP = "benchsuite.methods"
 
 
 def _builtin_classes() -> dict:
-    from benchsuite.methods import builtin, ucc
+    from benchsuite.methods.builtin import builtin_classes
 
-    classes = [builtin.HartreeFockBitstring, builtin.ExactSector, ucc.UCCSDVQE, ucc.UpCCGSDVQE,
-               ucc.AdaptVQE, builtin.SampledEnergy]
-    return {cls.name: cls for cls in classes}
+    return builtin_classes()
 
 
 def builtin_names() -> list[str]:

@@ -18,7 +18,7 @@ orbitals        the SCF solution: SCF kind, the orbital convention version
                 rounded to 1e-6 Eh and the alpha and beta density matrices in the AO
                 basis rounded to 1e-5 -- invariant under the sign (phase) of any orbital,
                 different for a different SCF solution
-encoding        encoding, spin-orbital ordering, two-qubit reduction, tapering
+encoding        encoding, spin-orbital ordering, dropped spin-parity qubits, tapering
 ==============  ==========================================================================
 
 The **token** written into every export and expected in a results file is
@@ -118,7 +118,7 @@ def component_values(case: Case, basis: Basis, space: OrbitalSpace, encoding) ->
         "space": {"kind": space.kind, "n_core": space.n_core, "n_orbitals": space.n_orbitals,
                   "n_alpha": space.n_alpha, "n_beta": space.n_beta, "n_orbitals_total": space.n_orbitals_total},
         "encoding": {"name": encoding.name, "ordering": encoding.ordering, "taper": bool(encoding.taper),
-                     "two_qubit_reduction": bool(encoding.two_qubit_reduction)},
+                     "drop_spin_parity_qubits": bool(encoding.drop_spin_parity_qubits)},
     }
 
 

@@ -3,48 +3,122 @@ encoding) and its primary reference, both in the same orbital space."""
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 from benchsuite.chem.cache import DiskCache
 from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS, Ladder, reference_ladder
-from benchsuite.chem.space import case_integrals, prepare
+from benchsuite.chem.space import prepare
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem
-from benchsuite.qubit.encodings import check_register
-from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, two_qubit_reduction
+from benchsuite.qubit.encodings import DROP_LABEL, LEGACY_DROP_LABEL, check_register
+from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, drop_spin_parity_qubits
 from benchsuite.qubit.pauli import MAX_QUBITS
 from benchsuite.registry.case import Basis, Case
 
 
 @dataclass(frozen=True)
 class Encoding:
-    """How the problem is put on qubits."""
+    """How the problem is put on qubits.
+
+    ``drop_spin_parity_qubits`` (parity encoding, blocked ordering): remove the two qubits holding
+    the N_alpha and N parities (Bravyi, Gambetta, Mezzacapo & Temme, arXiv:1701.08213 (2017)).
+    ``label`` reads ``name[+sp-dropped][+tapered]/ordering``.
+    """
 
     name: str = "jordan-wigner"
     ordering: str = "interleaved"
     taper: bool = False
-    two_qubit_reduction: bool = False
+    drop_spin_parity_qubits: bool = False
 
     def check(self) -> "Encoding":
-        check_register(self.name, self.ordering, self.two_qubit_reduction)
+        check_register(self.name, self.ordering, self.drop_spin_parity_qubits)
         return self
 
     @property
     def label(self) -> str:
-        extra = (["2qr"] if self.two_qubit_reduction else []) + (["tapered"] if self.taper else [])
+        extra = ([DROP_LABEL] if self.drop_spin_parity_qubits else []) + (["tapered"] if self.taper else [])
         return "+".join([self.name] + extra) + f"/{self.ordering}"
 
+    @classmethod
+    def from_label(cls, label: str) -> "Encoding":
+        """The encoding of a stored label (the current form or the one written before the rename)."""
+        name_part, _, ordering = label.partition("/")
+        name, *extras = name_part.split("+")
+        dropped = DROP_LABEL in extras or LEGACY_DROP_LABEL in extras
+        return cls(name, ordering or "interleaved", "tapered" in extras, dropped)
 
-def encode(ints, enc: Encoding) -> QubitHamiltonian:
-    """The encoded Hamiltonian with the requested reductions applied in order."""
+    @classmethod
+    def from_fields(cls, doc: dict) -> "Encoding":
+        """The encoding of stored settings fields (``two_qubit_reduction`` read as the old name)."""
+        doc = dict(doc)
+        if "two_qubit_reduction" in doc:
+            doc["drop_spin_parity_qubits"] = bool(doc.pop("two_qubit_reduction"))
+        return cls(**{k: v for k, v in doc.items() if k in cls.__dataclass_fields__})
+
+
+def encode(ints, enc: Encoding, taper_sector: str = "hf", max_qubits: int | None = None) -> QubitHamiltonian:
+    """The encoded Hamiltonian with the requested reductions applied in order (tapering in the
+    Hartree-Fock state's Z2 sector, or with ``taper_sector="lowest"`` the one holding the lowest
+    (N, S_z) state, found by exact diagonalisation up to ``max_qubits``)."""
+    return encode_timed(ints, enc, taper_sector, max_qubits)[1]
+
+
+def encode_timed(ints, enc: Encoding, taper_sector: str = "hf", max_qubits: int | None = None):
+    """``(unreduced, reduced, encoding seconds, reduction seconds)``: the encoded Hamiltonian before
+    and after the reductions, with the time of the encoding step alone and of the reductions."""
     from benchsuite.qubit.tapering import taper
 
-    ham = encode_integrals(ints, enc.name, enc.ordering)
-    if enc.two_qubit_reduction:
-        ham = two_qubit_reduction(ham)
+    t0 = time.perf_counter()
+    full = encode_integrals(ints, enc.name, enc.ordering)
+    t1 = time.perf_counter()
+    ham = full
+    if enc.drop_spin_parity_qubits:
+        ham = drop_spin_parity_qubits(ham)
     if enc.taper:
-        ham = taper(ham)
-    return ham
+        ham = taper(ham, taper_sector, max_qubits=max_qubits)
+    return full, ham, t1 - t0, time.perf_counter() - t1
+
+
+@dataclass
+class EncodedCase:
+    """One case on qubits, as :func:`encode_case` builds it for the methods and ``hamiltonian``.
+
+    ``full`` is the encoded Hamiltonian before reductions, ``hamiltonian`` after them;
+    ``build_seconds`` times the encoding step alone (integrals excluded), ``reduction_seconds`` the
+    reductions.  ``scf`` and ``space`` are the SCF summary and orbital space of the integrals.
+    """
+
+    prep: object
+    integrals: object
+    scf: object
+    space: object
+    full: QubitHamiltonian
+    hamiltonian: QubitHamiltonian
+    build_seconds: float
+    reduction_seconds: float
+
+
+def check_case_register(case: Case, basis: Basis | str | None, enc: Encoding):
+    """The checks every build makes before any SCF: register, orbital space, the qubit limit.
+    Returns the prepared case (:func:`benchsuite.chem.space.prepare`)."""
+    enc.check()
+    prep = prepare(case, basis)
+    if 2 * prep.space.n_orbitals > MAX_QUBITS:
+        raise InputError(f"{2 * prep.space.n_orbitals} qubits needed; at most {MAX_QUBITS} are supported",
+                         case.path, "basis")
+    return prep
+
+
+def encode_case(case: Case, prep, enc: Encoding, cache: DiskCache | None = None, taper_sector: str = "hf",
+                max_qubits: int | None = None) -> EncodedCase:
+    """Integrals of a checked case (``prep`` from :func:`check_case_register`) and its encoded
+    Hamiltonian, before and after the reductions of ``enc``."""
+    from benchsuite.chem import space as chem_space
+
+    ints, scf, space = chem_space.case_integrals(case, prep.basis, cache=cache, prep=prep)
+    full, ham, build_s, reduce_s = encode_timed(ints, enc, taper_sector, max_qubits)
+    return EncodedCase(prep, ints, scf, space, full, ham, build_s, reduce_s)
 
 
 @dataclass
@@ -64,15 +138,10 @@ def build_problem(case: Case, basis: Basis | str | None = None, enc: Encoding = 
                   cache: DiskCache | None = None, seed: int = 0, time_budget_s: float | None = None,
                   max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> PreparedProblem:
     """Integrals, reference ladder and encoded Hamiltonian of one case, validated first."""
-    enc.check()
-    prep = prepare(case, basis)
-    if 2 * prep.space.n_orbitals > MAX_QUBITS:
-        raise InputError(f"{2 * prep.space.n_orbitals} qubits needed; at most {MAX_QUBITS} are supported",
-                         case.path, "basis")
+    prep = check_case_register(case, basis, enc)
     ladder = reference_ladder(case, prep.basis, cache=cache, max_determinants=max_determinants, prep=prep)
-    ints, _, space = case_integrals(case, prep.basis, cache=cache, prep=prep)
-    ham = encode(ints, enc)
-    problem = QubitProblem(case=case.name, basis=prep.basis.label, space=space.label, hamiltonian=ham,
-                           integrals=ints, multiplicity=case.multiplicity, seed=seed,
-                           time_budget_s=time_budget_s)
+    built = encode_case(case, prep, enc, cache)
+    problem = QubitProblem(case=case.name, basis=prep.basis.label, space=built.space.label,
+                           hamiltonian=built.hamiltonian, integrals=built.integrals,
+                           multiplicity=case.multiplicity, seed=seed, time_budget_s=time_budget_s)
     return PreparedProblem(problem=problem, ladder=ladder, encoding=enc)

@@ -59,17 +59,32 @@ def check_ordering(ordering: str) -> str:
     return ordering
 
 
-def check_register(encoding: str, ordering: str, two_qubit_reduction: bool = False) -> None:
-    """Encoding, ordering and the two-qubit reduction's requirements; InputError on any mismatch."""
+#: Label part of an encoding whose spin-parity qubits are dropped; runs stored before the option's
+#: rename wrote :data:`LEGACY_DROP_LABEL` (read, never written).
+DROP_LABEL = "sp-dropped"
+LEGACY_DROP_LABEL = "2qr"
+
+
+def current_label(label: str | None) -> str | None:
+    """A stored encoding label in the current form (old runs wrote ``+2qr`` for the dropped qubits)."""
+    if label is None:
+        return None
+    name_part, slash, ordering = label.partition("/")
+    parts = [DROP_LABEL if p == LEGACY_DROP_LABEL else p for p in name_part.split("+")]
+    return "+".join(parts) + slash + ordering
+
+
+def check_register(encoding: str, ordering: str, drop_spin_parity_qubits: bool = False) -> None:
+    """Encoding, ordering and the spin-parity qubit removal's requirements; InputError on any mismatch."""
     check_encoding(encoding)
     check_ordering(ordering)
-    if two_qubit_reduction and encoding != "parity":
-        raise InputError(f"the two-qubit reduction needs --encoding parity (got {encoding})",
-                         field="--two-qubit-reduction")
-    if two_qubit_reduction and ordering != "blocked":
-        raise InputError("the two-qubit reduction needs --ordering blocked (alpha spin-orbitals "
+    if drop_spin_parity_qubits and encoding != "parity":
+        raise InputError(f"--drop-spin-parity-qubits needs --encoding parity (got {encoding})",
+                         field="--drop-spin-parity-qubits")
+    if drop_spin_parity_qubits and ordering != "blocked":
+        raise InputError("--drop-spin-parity-qubits needs --ordering blocked (alpha spin-orbitals "
                          "first, so that two qubits hold the N_alpha and N parities)",
-                         field="--two-qubit-reduction")
+                         field="--drop-spin-parity-qubits")
 
 
 def encoding_matrix(encoding: str, n_modes: int) -> np.ndarray:

@@ -40,7 +40,7 @@ from benchsuite.qubit.pauli import (
     product_phase,
 )
 
-TWO_QUBIT_REDUCTION = "two-qubit-reduction"
+SPIN_PARITY_DROP = "spin-parity-qubits-dropped"
 DROP_TOLERANCE_RULE = ("Pauli strings with |c| <= drop_tolerance dropped after merging; drop_tolerance = the SCF "
                        "energy convergence threshold (1e-10 Eh by default); dropped_one_norm_ha = their summed "
                        "|c| at the build, a bound on the energy shift")
@@ -59,7 +59,7 @@ class Reduction:
     Temme, arXiv:1701.08213 (2017)), which turns Z^{t_i} into X_{q_i}; then
     X_{q_i} is replaced by its eigenvalue.  Without it the generator is the
     single-qubit Z_{q_i} itself and Z_{q_i} is replaced (the parity
-    encoding's two-qubit reduction).  A basis state |b> of the symmetry
+    encoding with its spin-parity qubits dropped).  A basis state |b> of the symmetry
     sector maps to the reduced basis state b with the removed bits deleted
     (with the Clifford, U|b> = +-|b_reduced> (x) |X eigenstates>).
     """
@@ -324,7 +324,7 @@ def encode_integrals(mo: MOIntegrals, encoding: str = "jordan-wigner", ordering:
                             n_alpha=mo.n_alpha, n_beta=mo.n_beta, tolerance=tol, dropped_one_norm_ha=dropped)
 
 
-def two_qubit_reduction(ham: QubitHamiltonian) -> QubitHamiltonian:
+def drop_spin_parity_qubits(ham: QubitHamiltonian) -> QubitHamiltonian:
     """Remove the two qubits that hold N_alpha and N parities in the parity encoding.
 
     With blocked ordering, parity qubit n-1 holds (N_alpha mod 2) and qubit
@@ -335,16 +335,16 @@ def two_qubit_reduction(ham: QubitHamiltonian) -> QubitHamiltonian:
     reduction.
     """
     if ham.encoding != "parity":
-        raise InputError(f"the two-qubit reduction needs the parity encoding, not {ham.encoding}",
-                         field="--two-qubit-reduction")
+        raise InputError(f"dropping the spin-parity qubits needs the parity encoding, not {ham.encoding}",
+                         field="--drop-spin-parity-qubits")
     if ham.ordering != "blocked":
-        raise InputError("the two-qubit reduction needs blocked spin-orbital ordering "
-                         "(all alpha, then all beta); use --ordering blocked", field="--two-qubit-reduction")
+        raise InputError("dropping the spin-parity qubits needs blocked spin-orbital ordering "
+                         "(all alpha, then all beta); use --ordering blocked", field="--drop-spin-parity-qubits")
     if ham.reductions:
-        raise InputError("the two-qubit reduction must come before any other reduction",
-                         field="--two-qubit-reduction")
+        raise InputError("dropping the spin-parity qubits must come before any other reduction",
+                         field="--drop-spin-parity-qubits")
     n = ham.n_orbitals
-    red = Reduction(kind=TWO_QUBIT_REDUCTION, n_qubits_before=ham.n_qubits,
+    red = Reduction(kind=SPIN_PARITY_DROP, n_qubits_before=ham.n_qubits,
                     generators=(1 << (n - 1), 1 << (2 * n - 1)), qubits=(n - 1, 2 * n - 1),
                     eigenvalues=((-1) ** ham.n_alpha, (-1) ** ham.n_electrons), clifford=False)
     return replace(ham, pauli=red.apply(ham.pauli, ham.tolerance), reductions=ham.reductions + (red,))

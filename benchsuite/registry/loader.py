@@ -364,17 +364,8 @@ def _parse_frozen(raw: Any, path: Path, n_electrons: int, multiplicity: int) -> 
     return count or None
 
 
-def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
-    """Validate one case file; returns one case, or one per scan point."""
-    path = Path(path)
-    raw = read_toml(path)
-    missing = [k for k in REQUIRED if k not in raw]
-    if missing:
-        raise InputError("missing", path, missing[0])
-    unknown = set(raw) - set(REQUIRED) - set(OPTIONAL)
-    if unknown:
-        raise InputError(f"unknown field(s) {sorted(unknown)}", path, sorted(unknown)[0])
-
+def _parse_identity(raw: dict, path: Path) -> tuple[str, str, int, int]:
+    """``(name, units, charge, multiplicity)`` of a case file, each checked."""
     name = check_type(raw["name"], str, path, "name", "a string")
     if len(name) > bounds.MAX_NAME_LENGTH or not NAME_PATTERN.fullmatch(name):
         raise InputError(f"{show(name)} must be lowercase letters, digits and single hyphens "
@@ -386,6 +377,34 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
     mult = check_type(raw["multiplicity"], int, path, "multiplicity", "an integer 2S+1")
     if mult < 1:
         raise InputError(f"must be at least 1 (2S+1), got {mult}", path, "multiplicity")
+    return name, units, charge, mult
+
+
+def _parse_space(raw: dict, path: Path, n_electrons: int, mult: int):
+    """``(active space or None, frozen-core count or None)``; not both."""
+    active = frozen = None
+    if "active_space" in raw:
+        active = _parse_active(raw["active_space"], path, n_electrons, mult)
+    if "frozen_core" in raw:
+        frozen = _parse_frozen(raw["frozen_core"], path, n_electrons, mult)
+    if active is not None and frozen is not None:
+        raise InputError("give either frozen_core or active_space: an active space already "
+                         "freezes every orbital below it", path, "frozen_core")
+    return active, frozen
+
+
+def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
+    """Validate one case file; returns one case, or one per scan point."""
+    path = Path(path)
+    raw = read_toml(path)
+    missing = [k for k in REQUIRED if k not in raw]
+    if missing:
+        raise InputError("missing", path, missing[0])
+    unknown = set(raw) - set(REQUIRED) - set(OPTIONAL)
+    if unknown:
+        raise InputError(f"unknown field(s) {sorted(unknown)}", path, sorted(unknown)[0])
+
+    name, units, charge, mult = _parse_identity(raw, path)
     symbols, coords = _parse_atoms(raw["atoms"], path, units)
     n_electrons = sum(ATOMIC_NUMBER[s] for s in symbols) - charge
     _check_electrons(n_electrons, mult, path)
@@ -396,14 +415,7 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
     if geometry_source not in bib_keys:
         raise InputError(f"bib key {show(geometry_source)} is not in sources.bib", path, "geometry_source")
 
-    active = frozen = None
-    if "active_space" in raw:
-        active = _parse_active(raw["active_space"], path, n_electrons, mult)
-    if "frozen_core" in raw:
-        frozen = _parse_frozen(raw["frozen_core"], path, n_electrons, mult)
-    if active is not None and frozen is not None:
-        raise InputError("give either frozen_core or active_space: an active space already "
-                         "freezes every orbital below it", path, "frozen_core")
+    active, frozen = _parse_space(raw, path, n_electrons, mult)
     scan = _parse_scan(raw["scan"], path, coords, units) if "scan" in raw else None
     threshold = None
     if "threshold_mha" in raw:

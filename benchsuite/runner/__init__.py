@@ -44,8 +44,9 @@ from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_
                                          flush_c_output, kill_group, shutdown_forkserver)
 from benchsuite.scoring import result_status
 
-__all__ = ["DEFAULT_MAX_MEMORY_MB", "DEFAULT_TIMEOUT_S", "DaskPool", "GridConfig", "Job", "LocalPool", "Outcome",
-           "RunInterrupted", "Task", "execute", "judged_fields", "run_grid", "validate_result", "work"]
+__all__ = ["DEFAULT_MAX_MEMORY_MB", "DEFAULT_TIMEOUT_S", "DaskPool", "DirectJob", "GridConfig", "Job", "JobDone",
+           "LadderJob", "LocalPool", "MethodJob", "Outcome", "RunInterrupted", "Task", "execute", "judged_fields",
+           "run_grid", "validate_result", "work"]
 
 _PRELOAD = ["benchsuite.methods.builtin", "benchsuite.methods.ucc", "benchsuite.qubit.sector"]
 
@@ -180,10 +181,6 @@ def _run_here(method, problem: QubitProblem, options: dict) -> dict:
     return fields
 
 
-def _direct_work(method, problem, options) -> dict:
-    return _run_here(method, problem, options)
-
-
 def execute(method, problem: QubitProblem, options: dict | None = None, timeout_s: float | None = None,
             exact_ha: float | None = None, isolate: bool = True, max_memory_mb: float | None = None,
             sector_ha: float | None = None) -> Outcome:
@@ -203,17 +200,17 @@ def execute(method, problem: QubitProblem, options: dict | None = None, timeout_
         fields = contract.checked_fields(_run_here(method, problem, opts), needs_energy=True)
     else:
         try:
-            payload = pickle.dumps(("direct", method, problem, opts))
+            job = Job.of(DirectJob(method, problem, opts), budget(timeout_s, DEFAULT_TIMEOUT_S),
+                         budget(max_memory_mb, DEFAULT_MAX_MEMORY_MB))
         except Exception as exc:
             return Outcome(method=name, **unsendable_fields(exc))
-        job = Job(name, payload, budget(timeout_s, DEFAULT_TIMEOUT_S),
-                  budget(max_memory_mb, DEFAULT_MAX_MEMORY_MB))
         with InterruptGuard() as guard:
             pool = LocalPool(1, guard)
             try:
-                (_, fields), = pool.run([job])
+                (done,) = pool.run([job])
             finally:
                 pool.close()
+        fields = done.fields
     fields = judged_fields(fields, exact_ha, sector_ha, variational)
     return Outcome(method=name, **{k: v for k, v in fields.items() if k in _OUTCOME_FIELDS})
 
@@ -234,69 +231,111 @@ class Task:
     key: str
 
 
+@dataclass(frozen=True)
+class LadderJob:
+    """Compute (and cache) the reference ladder of one (case, basis) in a worker."""
+
+    case: object            # registry Case
+    basis: object           # registry Basis
+    cache_dir: str | None
+    max_determinants: int
+
+    def run(self) -> dict:
+        from benchsuite.chem.cache import DiskCache
+        from benchsuite.chem.ladder import reference_ladder
+
+        t0 = time.perf_counter()
+        lad = reference_ladder(self.case, self.basis, cache=DiskCache(self.cache_dir),
+                               max_determinants=self.max_determinants)
+        primary = lad.primary
+        return {"status": "ok", "seconds": time.perf_counter() - t0, "cache": lad.cache_status,
+                "primary_status": None if primary is None else primary.status}
+
+
+@dataclass(frozen=True)
+class MethodJob:
+    """Build a task's problem (from the cached references) and run its method on it in a worker.
+
+    ``timeout_s`` is the method's time budget in seconds (handed to it as ``problem.time_budget_s``)."""
+
+    task: Task
+    method: object          # the method object from discovery
+    cache_dir: str | None
+    seed: int
+    timeout_s: float | None
+    max_determinants: int
+
+    def run(self) -> dict:
+        from benchsuite.chem.cache import DiskCache
+        from benchsuite.methods.problem import build_problem
+        from benchsuite.qubit.metrics import qwc_groups
+
+        t = self.task
+        prepared = build_problem(t.case, t.basis, t.encoding, cache=DiskCache(self.cache_dir), seed=self.seed,
+                                 time_budget_s=self.timeout_s, max_determinants=self.max_determinants)
+        fields = _run_here(self.method, prepared.problem, resolve_options(self.method, t.options))
+        pauli = prepared.problem.hamiltonian.pauli
+        groups = qwc_groups(pauli)
+        fields["problem"] = {"n_qubits": prepared.problem.n_qubits,
+                             "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
+                             "one_norm_ha": float(pauli.one_norm()),
+                             "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
+        return fields
+
+
+@dataclass(frozen=True)
+class DirectJob:
+    """Run a method on a problem already built (:func:`execute`)."""
+
+    method: object
+    problem: QubitProblem
+    options: dict
+
+    def run(self) -> dict:
+        return _run_here(self.method, self.problem, self.options)
+
+
 @dataclass
 class Job:
-    """A payload for a worker and how to contain it.
+    """A job for a worker and how to contain it.
 
-    ``timeout_s``/``max_memory_mb``: ``None`` means no limit (defaults are
-    applied by the caller).  ``needs_energy``: an ``ok`` answer must carry an
-    energy (method jobs; reference ladder jobs return none).
+    ``work`` is what to do (a :class:`LadderJob`, :class:`MethodJob` or
+    :class:`DirectJob`, kept in the parent), ``payload`` its pickle (sent to
+    the worker).  ``timeout_s``/``max_memory_mb``: ``None`` means no limit
+    (defaults are applied by the caller).  ``needs_energy``: an ``ok`` answer
+    must carry an energy (method jobs; reference ladder jobs return none).
     """
 
-    job_id: str
+    work: object
     payload: bytes
     timeout_s: float | None
     max_memory_mb: float | None = None
     needs_energy: bool = True
 
-
-def ladder_job(case, basis, cache_dir, max_determinants: int) -> tuple:
-    return ("ladder", case, basis, cache_dir, max_determinants)
-
-
-def method_job(task: Task, method_obj, cache_dir, seed: int, timeout_s, max_determinants: int) -> tuple:
-    return ("method", task, method_obj, cache_dir, seed, timeout_s, max_determinants)
+    @classmethod
+    def of(cls, work, timeout_s: float | None, max_memory_mb: float | None = None,
+           needs_energy: bool = True) -> "Job":
+        """Package ``work``; raises whatever pickling raises (a method object that cannot be sent)."""
+        return cls(work, pickle.dumps(work), timeout_s, max_memory_mb, needs_energy)
 
 
-def _ladder_work(case, basis, cache_dir, max_determinants) -> dict:
-    from benchsuite.chem.cache import DiskCache
-    from benchsuite.chem.ladder import reference_ladder
+@dataclass
+class JobDone:
+    """A finished job and the checked fields its worker (or the pool, for a timeout or a death) gave."""
 
-    t0 = time.perf_counter()
-    lad = reference_ladder(case, basis, cache=DiskCache(cache_dir), max_determinants=max_determinants)
-    primary = lad.primary
-    return {"status": "ok", "seconds": time.perf_counter() - t0, "cache": lad.cache_status,
-            "primary_status": None if primary is None else primary.status}
-
-
-def _method_work(task: Task, method_obj, cache_dir, seed, timeout_s, max_determinants) -> dict:
-    from benchsuite.chem.cache import DiskCache
-    from benchsuite.methods.problem import build_problem
-    from benchsuite.qubit.metrics import qwc_groups
-
-    prepared = build_problem(task.case, task.basis, task.encoding, cache=DiskCache(cache_dir), seed=seed,
-                             time_budget_s=timeout_s, max_determinants=max_determinants)
-    opts = resolve_options(method_obj, task.options)
-    fields = _run_here(method_obj, prepared.problem, opts)
-    pauli = prepared.problem.hamiltonian.pauli
-    groups = qwc_groups(pauli)
-    fields["problem"] = {"n_qubits": prepared.problem.n_qubits,
-                         "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
-                         "one_norm_ha": float(pauli.one_norm()),
-                         "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
-    return fields
-
-
-_WORK = {"ladder": _ladder_work, "method": _method_work, "direct": _direct_work}
+    job: Job
+    fields: dict
 
 
 def work(job) -> dict:
-    """Run one job (a tuple, or its pickle) in this process and return plain fields; never raises."""
+    """Run one job (a job object, or its pickle) in this process and return plain fields; never raises."""
     t0 = time.perf_counter()
     try:
         if isinstance(job, bytes):
             job = pickle.loads(job)
-        return _WORK[job[0]](*job[1:])
+        if not isinstance(job, (LadderJob, MethodJob, DirectJob)):
+            raise TypeError(f"not a job: {type(job).__name__}")
+        return job.run()
     except (Exception, SystemExit) as exc:
         return {**exception_fields(exc), "seconds": time.perf_counter() - t0}
 
@@ -340,7 +379,7 @@ class LocalPool:
         self.running: dict = {}
 
     def run(self, jobs: list[Job]):
-        """Yield ``(job_id, fields)`` as jobs finish (in completion order)."""
+        """Yield a :class:`JobDone` for each job as it finishes (in completion order)."""
         from multiprocessing.connection import wait
 
         pending = list(jobs)
@@ -386,7 +425,7 @@ class LocalPool:
             fields = died_fields(w.proc.exitcode, elapsed)
         fields.setdefault("seconds", elapsed)
         fields["captured_output"] = w.capture.tail()
-        return w.job.job_id, fields
+        return JobDone(w.job, fields)
 
     def close(self) -> None:
         """Kill every running worker's process group, reap them, drop their captured output."""
@@ -444,7 +483,7 @@ class DaskPool:
         from dask.distributed import wait
 
         futures = {self.client.submit(_subprocess_work, j.payload, j.timeout_s, j.max_memory_mb, j.needs_energy,
-                                      pure=False, key=j.job_id): j for j in jobs}
+                                      pure=False): j for j in jobs}
         self.futures = futures
         pending = set(futures)
         while pending:
@@ -454,7 +493,7 @@ class DaskPool:
             except (DaskTimeout, TimeoutError):
                 continue
             for fut in done:
-                yield futures[fut].job_id, self._result(fut, futures[fut])
+                yield JobDone(futures[fut], self._result(fut, futures[fut]))
 
     @staticmethod
     def _result(fut, job: Job) -> dict:
@@ -519,31 +558,43 @@ def run_grid(tasks: list[Task], methods: dict, cfg: GridConfig, on_result, progr
                 shutdown_forkserver()
 
 
-def _run_grid(tasks, methods, cfg, on_result, progress, pool) -> None:
+def _pair(case, basis) -> tuple[str, str]:
+    """The (case name, basis label) a reference ladder belongs to."""
+    return case.name, basis.label
+
+
+def _run_ladders(tasks, cfg: GridConfig, progress, pool) -> tuple[dict, dict]:
+    """Every distinct (case, basis) ladder computed once; returns ``(ladders, failures)`` keyed by
+    :func:`_pair` (a failure maps to its message)."""
     from benchsuite.chem.cache import DiskCache
     from benchsuite.chem.ladder import reference_ladder
 
     pairs = {}
     for t in tasks:
-        pairs.setdefault((t.case.name, t.basis.label), (t.case, t.basis))
-    jobs = [Job(f"ladder|{c}|{b}", pickle.dumps(ladder_job(case, basis, cfg.cache_dir, cfg.max_determinants)),
-                cfg.reference_timeout_s, needs_energy=False) for (c, b), (case, basis) in pairs.items()]
+        pairs.setdefault(_pair(t.case, t.basis), (t.case, t.basis))
+    jobs = [Job.of(LadderJob(case, basis, cfg.cache_dir, cfg.max_determinants), cfg.reference_timeout_s,
+                   needs_energy=False) for case, basis in pairs.values()]
     failed = {}
-    for job_id, fields in pool.run(jobs):
-        if fields.get("status") != "ok":
-            failed[tuple(job_id.split("|")[1:])] = fields.get("message", "reference ladder failed")
+    for done in pool.run(jobs):
+        lj = done.job.work
+        if done.fields.get("status") != "ok":
+            failed[_pair(lj.case, lj.basis)] = done.fields.get("message", "reference ladder failed")
         if progress:
-            _, case_name, basis_label = job_id.split("|")
-            progress.reference_done(f"{case_name}[{basis_label}]", fields)
+            progress.reference_done(f"{lj.case.name}[{lj.basis.label}]", done.fields)
     cache = DiskCache(cfg.cache_dir)
     ladders = {k: reference_ladder(case, basis, cache=cache, max_determinants=cfg.max_determinants)
                for k, (case, basis) in pairs.items() if k not in failed}
-    by_key = {t.key: t for t in tasks}
+    return ladders, failed
+
+
+def _method_jobs(tasks, methods, cfg: GridConfig, ladders, failed, on_result) -> list[Job]:
+    """The method jobs to run; tasks that cannot run (failed ladder, unusable plugin, unsendable
+    method) are reported through ``on_result`` at once."""
     timeout_s = budget(cfg.timeout_s, DEFAULT_TIMEOUT_S)
     memory_mb = budget(cfg.max_memory_mb, DEFAULT_MAX_MEMORY_MB)
-    method_jobs = []
+    jobs = []
     for t in tasks:
-        pair = (t.case.name, t.basis.label)
+        pair = _pair(t.case, t.basis)
         obj, failure = methods[t.method]
         if pair in failed:
             on_result(t, {"status": "error", "message": "reference ladder failed: "
@@ -552,14 +603,18 @@ def _run_grid(tasks, methods, cfg, on_result, progress, pool) -> None:
             on_result(t, {"status": "error", "message": f"plugin unusable: {failure.reason}"}, ladders[pair])
         else:
             try:
-                payload = pickle.dumps(method_job(t, obj, cfg.cache_dir, cfg.seed, timeout_s, cfg.max_determinants))
+                jobs.append(Job.of(MethodJob(t, obj, cfg.cache_dir, cfg.seed, timeout_s, cfg.max_determinants),
+                                   timeout_s, memory_mb))
             except Exception as exc:
                 on_result(t, unsendable_fields(exc), ladders[pair])
-                continue
-            method_jobs.append(Job(t.key, payload, timeout_s, memory_mb))
-    for key, fields in pool.run(method_jobs):
-        task = by_key[key]
-        on_result(task, fields, ladders[(task.case.name, task.basis.label)])
+    return jobs
+
+
+def _run_grid(tasks, methods, cfg, on_result, progress, pool) -> None:
+    ladders, failed = _run_ladders(tasks, cfg, progress, pool)
+    for done in pool.run(_method_jobs(tasks, methods, cfg, ladders, failed, on_result)):
+        task = done.job.work.task
+        on_result(task, done.fields, ladders[_pair(task.case, task.basis)])
 
 
 def _stdin_main() -> None:

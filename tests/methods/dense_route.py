@@ -31,7 +31,7 @@ from benchsuite.methods.ucc import (
     serial_blas,
 )
 from benchsuite.qubit.encodings import mode_indices
-from benchsuite.qubit.hamiltonian import encode_integrals, two_qubit_reduction
+from benchsuite.qubit.hamiltonian import encode_integrals, drop_spin_parity_qubits
 
 # -- problems -------------------------------------------------------------------------
 
@@ -74,8 +74,8 @@ def make_problem(name: str, encoding: str = "jordan-wigner", ordering: str = "in
                  reduce: str | None = None, **extra) -> QubitProblem:
     ints = integrals_for(name)
     ham = encode_integrals(ints, encoding, ordering)
-    if reduce == "2qr":
-        ham = two_qubit_reduction(ham)
+    if reduce == "sp-dropped":
+        ham = drop_spin_parity_qubits(ham)
     elif reduce == "taper":
         from benchsuite.qubit.tapering import taper
 

@@ -33,7 +33,7 @@ def test_hf_bitstring_and_exact_sector_against_the_ladder(registry, ladder_cache
 def test_exact_sector_under_every_encoding(registry, ladder_cache):
     case = registry.case("lih")
     ref = None
-    for enc in (Encoding("bravyi-kitaev"), Encoding("parity", "blocked", two_qubit_reduction=True),
+    for enc in (Encoding("bravyi-kitaev"), Encoding("parity", "blocked", drop_spin_parity_qubits=True),
                 Encoding("jordan-wigner", taper=True)):
         prep = build_problem(case, enc=enc, cache=ladder_cache)
         ref = prep.reference.energy_ha

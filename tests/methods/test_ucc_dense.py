@@ -168,7 +168,7 @@ def test_numpy_and_compiled_kernels_agree():
 
 
 @pytest.mark.parametrize("encoding, ordering, reduce", [
-    ("bravyi-kitaev", "interleaved", None), ("parity", "blocked", "2qr"),
+    ("bravyi-kitaev", "interleaved", None), ("parity", "blocked", "sp-dropped"),
     ("jordan-wigner", "interleaved", "taper"), ("bravyi-kitaev", "blocked", "taper")])
 def test_sector_state_on_other_registers(encoding, ordering, reduce):
     """On encoded and tapered registers the returned state has the determinant-space energy and,

@@ -54,12 +54,12 @@ def test_lowest_taper_sector(run_cli):
     assert doc["exact"]["spin_square"][0] == pytest.approx(0.75, abs=1e-8)
 
 
-def test_two_qubit_reduction_and_text(run_cli):
+def test_drop_spin_parity_qubits_and_text(run_cli):
     code, out, err = run_cli("hamiltonian", "h2", "--encoding", "parity", "--ordering", "blocked",
-                             "--two-qubit-reduction", "--format", "text", "--terms", "0")
+                             "--drop-spin-parity-qubits", "--format", "text", "--terms", "0")
     assert code == 0, err
     assert "qubits 2 (before reductions 4)" in out
-    assert "reduction two-qubit-reduction: removed qubits [1, 3]" in out
+    assert "reduction spin-parity-qubits-dropped: removed qubits [1, 3]" in out
     assert "HF bitstring (qubit 0 first)" in out and "largest terms (4 of 4)" in out
 
 
@@ -79,10 +79,10 @@ BAD = {
     "unknown encoding": (["h2", "--encoding", "majorana"], "unknown encoding 'majorana'", "--encoding"),
     "unknown ordering": (["h2", "--ordering", "spiral"], "unknown spin-orbital ordering 'spiral'",
                          "--ordering"),
-    "two-qubit reduction, interleaved": (["h2", "--encoding", "parity", "--two-qubit-reduction"],
-                                         "needs --ordering blocked", "--two-qubit-reduction"),
-    "two-qubit reduction, not parity": (["h2", "--ordering", "blocked", "--two-qubit-reduction"],
-                                        "needs --encoding parity", "--two-qubit-reduction"),
+    "spin-parity qubit removal, interleaved": (["h2", "--encoding", "parity", "--drop-spin-parity-qubits"],
+                                         "needs --ordering blocked", "--drop-spin-parity-qubits"),
+    "spin-parity qubit removal, not parity": (["h2", "--ordering", "blocked", "--drop-spin-parity-qubits"],
+                                        "needs --encoding parity", "--drop-spin-parity-qubits"),
     "beyond the exact qubit limit": (["lih", "--exact", "--max-exact-qubits", "10"],
                                      "12 qubits exceed the limit of 10", "--max-exact-qubits"),
     "beyond the default exact limit": (["h2o", "--basis", "6-31g", "--exact"],

@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from benchsuite.errors import InputError
-from benchsuite.qubit.hamiltonian import encode_integrals, two_qubit_reduction
+from benchsuite.qubit.hamiltonian import encode_integrals, drop_spin_parity_qubits
 from benchsuite.qubit.sector import ProductSector, sector_eigen, strings
 from benchsuite.qubit.tapering import taper
 
@@ -55,7 +55,7 @@ PAIRS = _registry_pairs()
 def _variants(mo):
     yield "jordan-wigner", encode_integrals(mo, "jordan-wigner")
     yield "bravyi-kitaev", encode_integrals(mo, "bravyi-kitaev", "blocked")
-    yield "parity + two-qubit reduction", two_qubit_reduction(encode_integrals(mo, "parity", "blocked"))
+    yield "parity with the spin-parity qubits dropped", drop_spin_parity_qubits(encode_integrals(mo, "parity", "blocked"))
     yield "jordan-wigner + tapering", taper(encode_integrals(mo, "jordan-wigner"))
 
 

@@ -1,4 +1,4 @@
-"""Z2 symmetries, tapering and the two-qubit reduction.
+"""Z2 symmetries, tapering and the spin-parity qubit removal.
 
 Independent routes: OpenFermion's sparse matrix of the untapered operator
 (``get_sparse_operator``), restricted here to the states of one symmetry
@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from benchsuite.errors import InputError
-from benchsuite.qubit.hamiltonian import encode_integrals, two_qubit_reduction
+from benchsuite.qubit.hamiltonian import encode_integrals, drop_spin_parity_qubits
 from benchsuite.qubit.pauli import parity
 from benchsuite.qubit.sector import sector_eigen
 from benchsuite.qubit.tapering import find_symmetries, reference_eigenvalues, taper, z2_sector_scan
@@ -112,10 +112,10 @@ def test_reference_sector_holds_the_ground_state(case_ints, name):
     assert sum(r[2] for r in rows) == sector_eigen(ham, spin=False).dimension
 
 
-def test_two_qubit_reduction_removes_the_parity_qubits(case_ints):
+def test_drop_spin_parity_qubits_removes_the_parity_qubits(case_ints):
     mo = case_ints("lih", "sto-3g")[0]
     ham = encode_integrals(mo, "parity", "blocked")
-    red = two_qubit_reduction(ham)
+    red = drop_spin_parity_qubits(ham)
     n = mo.n_orbitals
     assert red.n_qubits == ham.n_qubits - 2
     assert red.reductions[0].qubits == (n - 1, 2 * n - 1)
@@ -129,10 +129,10 @@ def test_two_qubit_reduction_removes_the_parity_qubits(case_ints):
 
 @pytest.mark.parametrize("encoding,ordering", [("parity", "interleaved"), ("jordan-wigner", "blocked"),
                                                ("bravyi-kitaev", "blocked")])
-def test_two_qubit_reduction_refuses_other_layouts(case_ints, encoding, ordering):
+def test_drop_spin_parity_qubits_refuses_other_layouts(case_ints, encoding, ordering):
     mo = case_ints("h2", "sto-3g")[0]
-    with pytest.raises(InputError, match="two-qubit reduction"):
-        two_qubit_reduction(encode_integrals(mo, encoding, ordering))
+    with pytest.raises(InputError, match="spin-parity qubits"):
+        drop_spin_parity_qubits(encode_integrals(mo, encoding, ordering))
 
 
 def test_bad_sector_choice(case_ints):
