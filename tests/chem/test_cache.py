@@ -75,12 +75,17 @@ def test_key_covers_geometry_and_pyscf_version(scratch, run_cli, tmp_path):
     b = json.loads(out)
     assert b["cache"] == "miss"
     assert a["ladder"][0]["energy_ha"] != b["ladder"][0]["energy_ha"]
-    from benchsuite.chem.space import cache_fields, prepare
-    from benchsuite.registry import Registry
-    case = Registry.load(case_files=[b_path], builtin=False).case("scratch-h2")
-    prep = prepare(case)
+
+
+def test_another_pyscf_version_is_a_miss(run_cli, scratch, tmp_path, monkeypatch):
+    """An entry written under one PySCF release is never served to another (its numbers may differ)."""
     import pyscf
-    assert cache_fields(case, prep.basis, prep.space, "rhf")["pyscf"] == pyscf.__version__
+
+    path = scratch(H2_CASE, "a.toml")
+    assert _references(run_cli, path, tmp_path / "c")["cache"] == "miss"
+    assert _references(run_cli, path, tmp_path / "c")["cache"] == "hit"
+    monkeypatch.setattr(pyscf, "__version__", pyscf.__version__ + ".post-test")
+    assert _references(run_cli, path, tmp_path / "c")["cache"] == "miss"
 
 
 # -- the corrupted-cache matrix --------------------------------------------------------
