@@ -21,7 +21,7 @@ import argparse
 import sys
 
 from benchsuite.commands import gate, hamiltonian, inspect, outputs, solve
-from benchsuite.commands_external import COMMANDS as EXTERNAL_COMMANDS
+from benchsuite.commands.external import COMMANDS as EXTERNAL_COMMANDS
 from benchsuite.errors import InputError
 
 COMMANDS = {

@@ -30,7 +30,7 @@ KERNELS = {
 #: Layer of each top-level unit of benchsuite/, lowest first (DEVELOPERS.md, "The pipeline").
 LAYERS = {
     "registry": 0, "chem": 1, "qubit": 2, "methods": 3, "runner": 4, "store": 5, "report": 6, "gate": 7,
-    "api": 8, "pytest_session": 8, "pytest_plugin": 9, "commands": 10, "commands_external": 10, "cli": 11,
+    "api": 8, "pytest_session": 8, "pytest_plugin": 9, "commands": 10, "cli": 11,
 }
 #: Pure modules: no PySCF, no package state; importable from any layer.
 PURE = {"constants", "errors", "scoring", "defaults", "benchsuite"}
