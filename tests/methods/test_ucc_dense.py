@@ -27,6 +27,7 @@ from benchsuite.methods.determinant import (
     GeneratorPool,
     SectorHamiltonian,
     kernel_backend,
+    kernel_note,
     reference_on_register,
     register_state,
     weight_outside,
@@ -158,7 +159,7 @@ def test_shared_parameters_gradient_equals_central_differences():
 
 def test_numpy_and_compiled_kernels_agree():
     if kernel_backend() != "c":
-        pytest.skip("no C compiler here: only the numpy kernel runs")
+        pytest.skip(f"only the numpy kernel runs here ({kernel_note()})")
     _, _, ham, fast, _ = uccsd_objects("lih", backend="c")
     _, _, _, slow, _ = uccsd_objects("lih", backend="numpy")
     theta = random_angles(fast.n_parameters, seed=4)
