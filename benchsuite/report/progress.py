@@ -7,19 +7,10 @@ stdout stays clean for machine-readable output.
 
 from __future__ import annotations
 
-import re
 import sys
 import time
 
 from benchsuite.report.naming import task_label
-
-_CASE_BASIS = re.compile(r"^(?P<case>.*)\[(?P<basis>[^\[\]]*)\]$")
-
-
-def reference_label(label: str) -> str:
-    """The runner's ``case[basis]`` label as the report names it: ``h2 / STO-3G``."""
-    m = _CASE_BASIS.match(label)
-    return task_label(m["case"], m["basis"]) if m else label
 
 
 class Progress:
@@ -29,11 +20,12 @@ class Progress:
         self.total, self.done, self.passing, self.failing = n_tasks, 0, 0, 0
         self.t0 = time.perf_counter()
 
-    def reference_done(self, label: str, fields: dict) -> None:
+    def reference_done(self, case: str, basis: str, fields: dict) -> None:
+        """One (case, basis) reference ladder finished (``fields``: its job's status and seconds)."""
         self.t0 = time.perf_counter()          # the task phase starts after the last reference: ETA from here
         if not self.interactive:
             state = fields.get("status")
-            self.stream.write(f"reference {reference_label(label)}: {state} ({fields.get('seconds', 0.0):.1f} s)\n")
+            self.stream.write(f"reference {task_label(case, basis)}: {state} ({fields.get('seconds', 0.0):.1f} s)\n")
             self.stream.flush()
 
     def eta(self) -> str:

@@ -542,6 +542,7 @@ def run_grid(tasks: list[Task], methods: dict, cfg: GridConfig, on_result, progr
 
     ``methods`` maps a task's method spec to ``(method_object, failure)`` from discovery;
     a plugin that could not be loaded yields ``error`` fields for each of its tasks.
+    ``progress`` (optional) hears ``reference_done(case_name, basis_label, fields)`` per ladder.
 
     SIGTERM or SIGINT during the grid kills every worker's process group,
     stops the fork server and raises :class:`RunInterrupted` (results already
@@ -580,7 +581,7 @@ def _run_ladders(tasks, cfg: GridConfig, progress, pool) -> tuple[dict, dict]:
         if done.fields.get("status") != "ok":
             failed[_pair(lj.case, lj.basis)] = done.fields.get("message", "reference ladder failed")
         if progress:
-            progress.reference_done(f"{lj.case.name}[{lj.basis.label}]", done.fields)
+            progress.reference_done(lj.case.name, lj.basis.label, done.fields)
     cache = DiskCache(cfg.cache_dir)
     ladders = {k: reference_ladder(case, basis, cache=cache, max_determinants=cfg.max_determinants)
                for k, (case, basis) in pairs.items() if k not in failed}
