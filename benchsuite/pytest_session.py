@@ -80,27 +80,20 @@ def store_session_run(config, state):
     decide once; returns ``(GateDecision, run_id)``."""
     from dataclasses import replace
 
-    from benchsuite.gate.decision import decide
+    from benchsuite.gate.execute import Execution, conclude
     from benchsuite.gate.judge import final_rows
-    from benchsuite.store.baseline import DEFAULT_MAX_INCREASE_MHA, compare_runs
     from benchsuite.store.db import ResultStore
     from benchsuite.store.provenance import new_run_id
 
     run_id = new_run_id()
     rows = [replace(r, run_id=run_id) for _, r in sorted(state.rows.items())]
     run = _run_record(config, state, run_id, rows)
-    limit = config.getoption("bs_max_increase_mha")
+    ex = Execution(baseline_id=state.baseline_id, max_increase_mha=config.getoption("bs_max_increase_mha"),
+                   allow_new=config.getoption("bs_allow_new"))
     with ResultStore.open(state.db) as store:
         store.begin_run(run)
         final = final_rows(rows, state.settings)
         for row in final:
-            store.add_result(row)
-        comparison = None
-        if state.baseline_id is not None:
-            comparison = compare_runs(store.get_run(state.baseline_id), store.results(state.baseline_id), run,
-                                      final, DEFAULT_MAX_INCREASE_MHA if limit is None else limit,
-                                      config.getoption("bs_allow_new"))
-        decision = decide(run_id, final, state.settings, comparison)
-        store.finish_run(run_id, "complete", {**run.summary, "counts": decision.counts, "tasks": decision.n_tasks,
-                                              "failing": len(decision.failing), "gate": decision.to_dict()})
+            store.add_result(row)            # row by row: a busy store keeps them in the side file
+        decision = conclude(store, run, final, state.settings, ex)
     return decision, run_id

@@ -129,10 +129,7 @@ def execute_plan(store, plan: RunPlan, ex: Execution, outputs: Outputs, resumed=
         if progress is not None:
             progress.close()
     rows = finalise(store, run.run_id, plan)
-    decision = decide(run.run_id, rows, plan.settings, _comparison(store, ex, run.run_id, rows))
-    store.finish_run(run.run_id, "complete", {**run.summary, "counts": decision.counts,
-                                             "tasks": decision.n_tasks, "failing": len(decision.failing),
-                                             "gate": decision.to_dict()})
+    decision = conclude(store, run, rows, plan.settings, ex)
     run = store.get_run(run.run_id)
     write_outputs(store, run, rows, decision, outputs, registry)
     return decision, run, rows
@@ -162,6 +159,17 @@ def finalise(store, run_id: str, plan: RunPlan) -> list:
         if after is not before:
             store.add_result(after)
     return final
+
+
+def conclude(store, run, rows, settings, ex: Execution, extra_reasons: tuple[str, ...] = ()) -> GateDecision:
+    """The run's one gate decision from its final ``rows`` and, with ``ex.baseline_id``, the baseline
+    comparison; ``extra_reasons`` fail it too.  Stored with the run (status ``complete``)."""
+    decision = decide(run.run_id, rows, settings, _comparison(store, ex, run.run_id, rows))
+    decision.reasons.extend(extra_reasons)
+    store.finish_run(run.run_id, "complete", {**run.summary, "counts": decision.counts,
+                                             "tasks": decision.n_tasks, "failing": len(decision.failing),
+                                             "gate": decision.to_dict()})
+    return decision
 
 
 def _comparison(store, ex: Execution, run_id: str, rows):

@@ -589,8 +589,7 @@ def score_table(store, table: ResultsFile, checked: tuple, settings, problems: P
                 baseline_id: str | None = None, max_increase_mha: float | None = None,
                 allow_new: bool = False) -> ExternalScore:
     """Judge and store a read results file's :func:`checked_table` rows as one run; decide once."""
-    from benchsuite.gate.decision import decide
-    from benchsuite.gate.execute import Execution, _comparison
+    from benchsuite.gate.execute import Execution, conclude
     from benchsuite.store.provenance import new_run_id
 
     rows, errors = checked
@@ -601,11 +600,7 @@ def score_table(store, table: ResultsFile, checked: tuple, settings, problems: P
     store.begin_run(run)
     store.add_results(final)
     ex = Execution(baseline_id=baseline_id, max_increase_mha=max_increase_mha, allow_new=allow_new)
-    decision = decide(run_id, final, settings, _comparison(store, ex, run_id, final))
-    if errors:
-        decision.reasons.append(rejected_reason(errors, table))
-    store.finish_run(run_id, "complete", {**run.summary, "counts": decision.counts, "tasks": decision.n_tasks,
-                                         "failing": len(decision.failing), "gate": decision.to_dict()})
+    decision = conclude(store, run, final, settings, ex, (rejected_reason(errors, table),) if errors else ())
     return ExternalScore(store.get_run(run_id), final, decision, errors, table)
 
 
