@@ -62,20 +62,16 @@ class Execution:
 
 def new_run_record(plan: RunPlan, run_id: str, command: str):
     from benchsuite.methods.discovery import builtin_names
-    from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE
     from benchsuite.store.provenance import git_state, machine_info, package_versions, plugin_provenance
     from benchsuite.store.records import RunRecord, utc_now
 
     s = plan.settings
+    threshold_mha, threshold_source = s.run_threshold()
     return RunRecord(
         run_id=run_id, started_at=utc_now(), command=command, suite=plan.suite_name, cases=plan.case_names,
         methods=list(plan.methods), options={m: dict(o) for m, o in plan.options.items()},
         encoding=plan.encoding.label,
-        threshold_mha=s.threshold_mha if s.threshold_mha is not None else (
-            s.default_threshold_mha if s.default_threshold_mha is not None else DEFAULT_THRESHOLD_MHA),
-        threshold_source="--threshold-mha" if s.threshold_mha is not None else (
-            s.default_threshold_source or THRESHOLD_SOURCE if s.default_threshold_mha is not None
-            else THRESHOLD_SOURCE),
+        threshold_mha=threshold_mha, threshold_source=threshold_source,
         seed=plan.seed, packages=package_versions(), git=git_state(Path.cwd()),
         plugin_git=plugin_provenance(list(plan.methods), builtin_names=builtin_names()),
         machine=machine_info(), summary={"settings": s.to_dict()})

@@ -538,11 +538,11 @@ def method_provenance(rows: list[ExternalRow], table: ResultsFile) -> dict:
 
 def external_record(run_id: str, plan, rows: list[ExternalRow], table: ResultsFile, errors: list[RowError]):
     """The run record of a scored file: provenance of the file, its methods and its rejected rows."""
-    from benchsuite.scoring import DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE
     from benchsuite.store.provenance import git_state, machine_info, package_versions
     from benchsuite.store.records import RunRecord, utc_now
 
     s = plan.settings
+    threshold_mha, threshold_source = s.run_threshold()
     external = {"file": table.path, "sha256": table.sha256, "format": table.format, "rows": len(table.records),
                 "scored": len(rows), "rejected": [{"row": e.row, "column": e.column, "cause": e.cause} for e in errors],
                 "unverified": sum(1 for r in rows if not r.fingerprint), "header": table.header,
@@ -551,8 +551,7 @@ def external_record(run_id: str, plan, rows: list[ExternalRow], table: ResultsFi
         run_id=run_id, started_at=utc_now(), command=f"benchsuite score {table.path} (sha256 {table.sha256})",
         suite=plan.suite_name, cases=plan.case_names, methods=list(plan.methods), options={m: {} for m in plan.methods},
         encoding=", ".join(dict.fromkeys(r.encoding.label for r in rows)),
-        threshold_mha=s.threshold_mha if s.threshold_mha is not None else DEFAULT_THRESHOLD_MHA,
-        threshold_source="--threshold-mha" if s.threshold_mha is not None else THRESHOLD_SOURCE,
+        threshold_mha=threshold_mha, threshold_source=threshold_source,
         seed=0, packages=package_versions(), git=git_state(Path.cwd()), plugin_git=method_provenance(rows, table),
         machine=machine_info(), summary={"settings": s.to_dict(), "source": "external", "external": external})
 

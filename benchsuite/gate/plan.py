@@ -55,6 +55,15 @@ class RunSettings:
     default_threshold_mha: float | None = None
     default_threshold_source: str | None = None
 
+    def run_threshold(self) -> tuple[float, str]:
+        """The run's headline threshold (mHa) and its source: the command line, then the project
+        default, then 1 kcal/mol (cases and suites may set their own per task: :func:`threshold_for`)."""
+        if self.threshold_mha is not None:
+            return self.threshold_mha, "--threshold-mha"
+        if self.default_threshold_mha is not None:
+            return self.default_threshold_mha, self.default_threshold_source or THRESHOLD_SOURCE
+        return DEFAULT_THRESHOLD_MHA, THRESHOLD_SOURCE
+
     def to_dict(self) -> dict:
         return asdict(self)
 
