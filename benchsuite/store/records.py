@@ -275,6 +275,8 @@ def _storable(col: Column, value):
         raise ValueError(f"{type(exc).__name__}: {str(exc)[:200]}") from None
     if col.kind == "int" and abs(stored) > INT64_MAX:
         raise ValueError(f"{stored:.3e} is outside the 64-bit integer range")
+    if stored is None and col.required:
+        raise ValueError(f"{value!r:.60} is not a finite number")
     return stored
 
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from benchsuite.report.tables import render_table
@@ -43,6 +43,8 @@ CHANGES = st.fixed_dictionaries({}, optional={
 
 @settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(changes=st.lists(CHANGES, min_size=1, max_size=3))
+@example(changes=[{"seconds": float("inf")}])         # found by CI: a non-finite time in a NOT NULL column
+@example(changes=[{"seconds": float("nan")}, {"seconds": None}])
 def test_any_row_is_stored_and_rendered(tmp_path_factory, changes):
     db = tmp_path_factory.mktemp("fuzz") / "r.sqlite"
     with ResultStore.open(db) as store:
