@@ -1,4 +1,4 @@
-"""The classical reference ladder: HF, MP2, CCSD, CCSD(T), FCI or CASCI.
+"""The classical reference ladder: HF, MP2, CCSD, CCSD(T), FCI or CASCI, DMRG.
 
 Every rung is computed in the case's orbital space (:mod:`benchsuite.chem.space`):
 MP2 and CC with PySCF's ``frozen=`` list holding exactly the orbitals outside
@@ -20,6 +20,15 @@ lowest root of its (N, S_z) sector whatever its spin (equal to the energy when
 that root has the declared spin), so that the gate can tell a state of another
 spin (``wrong-state``) from an impossible energy (``below-exact``).  Beyond ``max_determinants`` the primary rung is skipped with
 the reason recorded, not attempted.
+
+DMRG (:mod:`benchsuite.chem.dmrg`, optional ``block2``) runs on the same active-space integrals
+when FCI/CASCI is skipped (``dmrg="auto"``), always (``"always"``) or never (``"never"``).  Its
+rung's ``energy_ha`` is the extrapolation to zero discarded weight, ``uncertainty_ha`` the
+extrapolation's uncertainty u and ``variational_ha`` the lowest variational energy of its sweeps;
+``details`` holds bond dimensions, discarded weights, sweep energies and the fit.
+
+The primary reference is chosen by availability (:attr:`Ladder.primary`): FCI/CASCI when it ran,
+else an ``ok`` DMRG rung, else the (skipped or failed) FCI/CASCI rung.
 """
 
 from __future__ import annotations
@@ -29,6 +38,7 @@ from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
+from benchsuite.chem import dmrg as dmrg_module
 from benchsuite.chem.cache import DiskCache
 from benchsuite.chem.integrals import MOIntegrals
 from benchsuite.chem.scf import ScfSummary, run_scf
@@ -38,18 +48,23 @@ from benchsuite.registry.case import Basis, Case, PublishedValue
 
 DEFAULT_MAX_DETERMINANTS = 5_000_000
 #: Part of every ladder's cache key; raise it when a rung's meaning or fields change
-#: (2: the primary rung records ``sector_lowest_ha``).
-LADDER_VERSION = 3
+#: (2: the primary rung records ``sector_lowest_ha``; 4: rungs carry ``uncertainty_ha``,
+#: ``variational_ha`` and ``details``, and a DMRG rung may be the primary).
+LADDER_VERSION = 4
 S2_TOLERANCE = 1e-6
-PRIMARY_METHODS = ("fci", "casci")
+EXACT_METHODS = ("fci", "casci")
+PRIMARY_METHODS = (*EXACT_METHODS, "dmrg")
+DMRG_MODES = ("auto", "always", "never")
 
 
 @dataclass
 class Rung:
     """One rung.  ``status``: ok, skipped (too large, or not applicable), failed, not-converged.
 
-    ``sector_lowest_ha`` (primary rung only): the lowest energy of the (N, S_z) sector over
-    every spin, <= ``energy_ha``.
+    ``sector_lowest_ha`` (FCI/CASCI rung only): the lowest energy of the (N, S_z) sector over
+    every spin, <= ``energy_ha``.  ``uncertainty_ha`` (DMRG): the reference's own uncertainty u
+    (0 or None for an exact rung); ``variational_ha`` (DMRG): its lowest variational energy;
+    ``details``: the rung's record (DMRG schedule, discarded weights, fit).
     """
 
     method: str
@@ -62,6 +77,9 @@ class Rung:
     s2: float | None = None
     n_determinants: int | None = None
     sector_lowest_ha: float | None = None
+    uncertainty_ha: float | None = None
+    variational_ha: float | None = None
+    details: dict | None = None
 
 
 @dataclass
@@ -81,10 +99,13 @@ class Ladder:
 
     @property
     def primary(self) -> Rung | None:
-        for r in self.rungs:
-            if r.method in PRIMARY_METHODS:
-                return r
-        return None
+        """FCI/CASCI when it ran, else an ``ok`` DMRG rung, else the FCI/CASCI rung (skipped or
+        failed), else None."""
+        exact = next((r for r in self.rungs if r.method in EXACT_METHODS), None)
+        if exact is not None and exact.status == "ok":
+            return exact
+        dmrg = self.rung("dmrg")
+        return dmrg if dmrg is not None and dmrg.status == "ok" else exact
 
     def rung(self, method: str) -> Rung | None:
         return next((r for r in self.rungs if r.method == method), None)
@@ -156,6 +177,30 @@ def exact_in_space(ints: MOIntegrals, multiplicity: int, label: str, method: str
         e = None
     return Rung(method, e, None, label, time.perf_counter() - t0, status, note,
                 s2=s2, n_determinants=ndet, sector_lowest_ha=sector_lowest)
+
+
+def dmrg_rung(ints: MOIntegrals, multiplicity: int, label: str,
+              settings: dmrg_module.DmrgSettings | None = None) -> Rung:
+    """The DMRG rung (:mod:`benchsuite.chem.dmrg`): extrapolated energy with its uncertainty; ``skipped``
+    without block2, ``failed`` (no energy) when block2 raises or the state's <S^2> or <N> is off."""
+    if dmrg_module.block2_version() is None:
+        return Rung("dmrg", None, None, label, 0.0, "skipped", dmrg_module.INSTALL_HINT)
+    t0 = time.perf_counter()
+    try:
+        rec = dmrg_module.run_dmrg(ints, multiplicity, settings)
+    except Exception as exc:  # a reference engine records a failed rung, never aborts the ladder
+        return Rung("dmrg", None, None, label, time.perf_counter() - t0, "failed",
+                    f"block2: {type(exc).__name__}: {exc}")
+    details = {k: v for k, v in rec.items() if k not in ("energy_ha", "uncertainty_ha", "variational_ha", "s2")}
+    problems = dmrg_module.state_problems(rec, multiplicity, ints.n_electrons)
+    points = rec["points"]
+    note = (f"M = {', '.join(str(p['bond_dim']) for p in points)}; extrapolated to zero discarded weight "
+            f"over the last {rec['fit']['n_points']}; u = {rec['uncertainty_ha'] * 1000:.3g} mHa")
+    if problems:
+        return Rung("dmrg", None, None, label, rec["seconds"], "failed",
+                    "DMRG state rejected: " + "; ".join(problems), s2=rec["s2"], details=details)
+    return Rung("dmrg", rec["energy_ha"], None, label, rec["seconds"], "ok", note, s2=rec["s2"],
+                uncertainty_ha=rec["uncertainty_ha"], variational_ha=rec["variational_ha"], details=details)
 
 
 def _semicanonical_uhf(mf, space: OrbitalSpace):
@@ -238,10 +283,17 @@ def _finite_or_failed(rung: Rung) -> Rung:
         return rung
     note = "non-finite energy (a zero orbital-energy denominator?)" + (f"; {rung.note}" if rung.note else "")
     return Rung(rung.method, None, None, rung.space, rung.seconds, "failed", note, rung.s2,
-                rung.n_determinants, rung.sector_lowest_ha)
+                rung.n_determinants, rung.sector_lowest_ha, details=rung.details)
 
 
-def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINANTS) -> dict:
+def _wants_dmrg(mode: str, exact_skipped: bool) -> bool:
+    if mode not in DMRG_MODES:
+        raise ValueError(f"unknown DMRG mode {mode!r}; one of {DMRG_MODES}")
+    return mode == "always" or (mode == "auto" and exact_skipped)
+
+
+def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINANTS, dmrg: str = "auto",
+                   dmrg_settings: dmrg_module.DmrgSettings | None = None) -> dict:
     """Run every rung (no cache); returns the JSON-ready metadata."""
     solve_scf(prep)
     space, scf_summary, ints = prep.space, prep.scf, prep.integrals
@@ -254,6 +306,11 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
     if exact.energy_ha is not None:
         exact.correlation_ha = exact.energy_ha - e_hf
     rungs.append(exact)
+    if _wants_dmrg(dmrg, exact.status == "skipped"):
+        d = dmrg_rung(ints, prep.case.multiplicity, space.label, dmrg_settings)
+        if d.energy_ha is not None:
+            d.correlation_ha = d.energy_ha - e_hf
+        rungs.append(d)
     if prep.scf_kind == "uhf":
         umf, usum = run_scf(prep.mol, "uhf")
         uhf = Rung("uhf", usum.energy_ha, usum.energy_ha - e_hf, space.label + ", UHF orbitals",
@@ -266,25 +323,33 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
               and r.method != "hf"]
     if exact.status == "skipped":
         flags.append(f"{primary} skipped: {exact.note}")
+    if any(r.method == "dmrg" and r.status == "skipped" for r in rungs):
+        flags.append(f"dmrg skipped: {dmrg_module.INSTALL_HINT}")
     return {"scf": scf_summary.to_dict(), "rungs": [asdict(r) for r in rungs], "flags": flags,
             "reference_energy_check_ha": ints.reference_energy_ha() - e_hf}
 
 
 def reference_ladder(case: Case, basis: Basis | str | None = None, cache: DiskCache | None = None,
                      scf_kind: str | None = None,
-                     max_determinants: int = DEFAULT_MAX_DETERMINANTS, prep: Prepared | None = None) -> Ladder:
+                     max_determinants: int = DEFAULT_MAX_DETERMINANTS, prep: Prepared | None = None,
+                     dmrg: str = "auto", dmrg_settings: dmrg_module.DmrgSettings | None = None) -> Ladder:
     """The ladder for one (case, basis), served from the cache when it can be.
 
     ``prep`` (from :func:`~benchsuite.chem.space.prepare`) lets a caller share one SCF between
-    the ladder and :func:`~benchsuite.chem.space.case_integrals`.
+    the ladder and :func:`~benchsuite.chem.space.case_integrals`.  ``dmrg``: when the DMRG rung
+    runs (:data:`DMRG_MODES`); when it would, its schedule and the installed block2 version are
+    part of the cache key (installing block2 later recomputes the ladder).
     """
     prep = prep or prepare(case, basis, scf_kind)
     cache = cache or DiskCache(None)
     fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep),
               "ladder_version": LADDER_VERSION}
+    if _wants_dmrg(dmrg, prep.space.n_determinants > max_determinants):
+        settings = dmrg_settings or dmrg_module.default_settings()
+        fields["dmrg"] = {**settings.to_key(), "block2": dmrg_module.block2_version()}
 
     def compute():
-        meta = compute_ladder(prep, max_determinants)
+        meta = compute_ladder(prep, max_determinants, dmrg, dmrg_settings)
         case_integrals(case, cache=cache, prep=prep)  # the same SCF serves later integral requests
         return meta, None
 
