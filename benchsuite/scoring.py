@@ -173,10 +173,23 @@ def fail_level(confidence: float) -> float:
     return (1.0 - confidence) / 2.0
 
 
+def review_note(energy_ha: float | None, reference_ha: float | None, uncertainty_ha: float | None) -> str:
+    """For a reference with an uncertainty u (DMRG): a phrase when the energy lies below the
+    extrapolated reference by more than u (possible for a variational method only if the
+    extrapolation is off: flagged for review), else ''."""
+    if energy_ha is None or reference_ha is None or not uncertainty_ha and uncertainty_ha != 0.0:
+        return ""
+    gap = reference_ha - energy_ha
+    if gap > uncertainty_ha + BELOW_EXACT_TOLERANCE_HA:
+        return (f"review: energy lies {1000 * gap:.4f} mHa below the extrapolated reference, more than its "
+                f"uncertainty u = {1000 * uncertainty_ha:.4f} mHa")
+    return ""
+
+
 def verdict(status: str, energy_ha: float | None, reference_ha: float | None,
             threshold_mha: float = DEFAULT_THRESHOLD_MHA, stderr_ha: float | None = None,
             confidence: float = 0.95, converged: bool | None = None,
-            require_converged: bool = False) -> Judgement:
+            require_converged: bool = False, reference_uncertainty_ha: float | None = None) -> Judgement:
     """Judge one result (a family of one; see :func:`stochastic_verdicts` for a run).
 
     A status other than ``ok`` is the verdict itself.  ``converged=False`` with
@@ -185,7 +198,15 @@ def verdict(status: str, energy_ha: float | None, reference_ha: float | None,
     and two-sided z for ``confidence``: ``pass`` if |error| + z sigma <= threshold, ``fail``
     if :func:`fail_p_value` <= :func:`fail_level` (|error| - z sigma > threshold up to a
     negligible far tail), otherwise ``inconclusive``.
+
+    A reference with its own uncertainty u (``reference_uncertainty_ha``, a DMRG extrapolation)
+    widens both sides: ``pass`` only if |error| + u (+ z sigma) <= threshold, ``fail`` only if
+    |error| - u (- z sigma) > threshold (the p-value is taken at |error| - u), else
+    ``inconclusive`` with the reason.
     """
+    if reference_uncertainty_ha:
+        return _verdict_with_u(status, energy_ha, reference_ha, threshold_mha, stderr_ha, confidence,
+                               converged, require_converged, 1000.0 * reference_uncertainty_ha)
     err = None if energy_ha is None or reference_ha is None else error_mha(energy_ha, reference_ha)
     if status != "ok":
         return Judgement(status, err, threshold_mha)
@@ -205,6 +226,27 @@ def verdict(status: str, energy_ha: float | None, reference_ha: float | None,
         return Judgement("fail", err, threshold_mha, f"p = {p:.3g} for |error| <= threshold", p_fail=p)
     return Judgement("inconclusive", err, threshold_mha,
                      f"|error| {abs(err):.4f} mHa within {margin:.4f} mHa ({confidence:.0%}) of the threshold",
+                     p_fail=p)
+
+
+def _verdict_with_u(status, energy_ha, reference_ha, threshold_mha, stderr_ha, confidence, converged,
+                    require_converged, u_mha: float) -> Judgement:
+    """:func:`verdict` against a reference of uncertainty ``u_mha``."""
+    base = verdict(status, energy_ha, reference_ha, threshold_mha, None, confidence, converged, require_converged)
+    if base.verdict not in ("pass", "fail"):
+        return base
+    err = base.error_mha
+    sigma = 1000.0 * stderr_ha if stderr_ha else 0.0
+    margin = z_value(confidence) * sigma
+    p = fail_p_value(max(abs(err) - u_mha, 0.0), sigma, threshold_mha) if sigma else None
+    if abs(err) + u_mha + margin <= threshold_mha:
+        return Judgement("pass", err, threshold_mha, p_fail=p)
+    if (p <= fail_level(confidence)) if sigma else abs(err) - u_mha > threshold_mha:
+        return Judgement("fail", err, threshold_mha, f"|error| - u = {abs(err) - u_mha:.4f} mHa exceeds the "
+                         f"threshold (u = {u_mha:.4f} mHa, the reference's uncertainty)", p_fail=p)
+    return Judgement("inconclusive", err, threshold_mha,
+                     f"|error| {abs(err):.4f} mHa is within the reference uncertainty u = {u_mha:.4f} mHa"
+                     + (f" and {margin:.4f} mHa ({confidence:.0%})" if sigma else "") + " of the threshold",
                      p_fail=p)
 
 

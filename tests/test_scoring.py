@@ -120,3 +120,35 @@ def test_curve_and_method_statistics():
     assert stats.rmse_mha == pytest.approx(math.sqrt(2.5))
     assert stats.max_abs_error_mha == 2.0
     assert stats.pass_rate == pytest.approx(1 / 3)
+
+
+# -- verdicts against a reference with its own uncertainty (a DMRG extrapolation) ------------------
+# The rule (issue 13): pass only if |error| + u <= threshold, fail only if |error| - u > threshold,
+# else inconclusive.  Threshold 1.5936 mHa (1 kcal/mol, CODATA 2018); synthetic u = 0.5 mHa.
+
+def test_uncertainty_straddling_threshold_is_inconclusive():
+    from benchsuite.scoring import verdict
+    ref, u = -10.0, 0.5e-3
+    j = verdict("ok", ref + 1.4e-3, ref, 1.5936, reference_uncertainty_ha=u)
+    assert j.verdict == "inconclusive" and "uncertainty" in j.message
+    assert verdict("ok", ref + 1.4e-3, ref, 1.5936).verdict == "pass"       # without u it would pass
+    assert verdict("ok", ref + 1.0e-3, ref, 1.5936, reference_uncertainty_ha=u).verdict == "pass"
+    assert verdict("ok", ref + 2.2e-3, ref, 1.5936, reference_uncertainty_ha=u).verdict == "fail"
+    assert verdict("ok", ref + 1.8e-3, ref, 1.5936, reference_uncertainty_ha=u).verdict == "inconclusive"
+
+
+def test_uncertainty_adds_to_stochastic_margin():
+    """sigma = 0.2 mHa at 95 %: z sigma = 0.392 mHa; |error| 0.6 + u 0.5 + 0.392 = 1.492 <= 1.5936 passes,
+    |error| 1.0 does not (1.892) but is not a fail either."""
+    from benchsuite.scoring import verdict
+    ref = -10.0
+    assert verdict("ok", ref + 0.6e-3, ref, 1.5936, 0.2e-3, reference_uncertainty_ha=0.5e-3).verdict == "pass"
+    assert verdict("ok", ref + 1.0e-3, ref, 1.5936, 0.2e-3, reference_uncertainty_ha=0.5e-3).verdict == "inconclusive"
+    assert verdict("ok", ref + 3.5e-3, ref, 1.5936, 0.2e-3, reference_uncertainty_ha=0.5e-3).verdict == "fail"
+
+
+def test_below_extrapolation_by_more_than_u_is_flagged():
+    from benchsuite.scoring import review_note
+    assert review_note(-10.0 - 0.7e-3, -10.0, 0.5e-3).startswith("review:")
+    assert review_note(-10.0 - 0.3e-3, -10.0, 0.5e-3) == ""
+    assert review_note(-10.0 - 0.7e-3, -10.0, None) == ""

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from benchsuite.scoring import Judgement, error_mha, stochastic_verdicts, verdict
+from benchsuite.scoring import Judgement, error_mha, review_note, stochastic_verdicts, verdict
 from benchsuite.store.records import ResultRow, utc_now
 
 
@@ -28,7 +28,24 @@ def _secondary(ladder, energy_ha) -> dict:
                   "from_memory": p.from_memory,
                   "error_mha": None if energy_ha is None else error_mha(energy_ha, p.energy_ha)}
                  for p in ladder.published]
-    return {"rungs": rungs, "published": published}
+    return {"rungs": rungs, "published": published, "reference": _reference_record(ladder, energy_ha)}
+
+
+def _reference_record(ladder, energy_ha) -> dict:
+    """The primary reference's rung, uncertainty u (Eh; 0 for FCI/CASCI), DMRG variational energy
+    and a review note (energy below an extrapolated reference by more than u)."""
+    p = ladder.primary
+    if p is None or p.status != "ok":
+        return {}
+    u = getattr(p, "uncertainty_ha", None)
+    return {"method": p.method, "uncertainty_ha": u or 0.0, "variational_ha": getattr(p, "variational_ha", None),
+            "review": review_note(energy_ha, p.energy_ha, u)}
+
+
+def reference_uncertainty(row) -> float | None:
+    """u of a stored row's primary reference (Eh), from its ``secondary`` record."""
+    ref = (row.secondary or {}).get("reference") or {}
+    return ref.get("uncertainty_ha") or None
 
 
 def _scf_record(ladder) -> dict:
@@ -38,12 +55,14 @@ def _scf_record(ladder) -> dict:
             "flags": list(ladder.scf.flags)}
 
 
-def judge_fields(fields: dict, reference_ha: float | None, threshold_mha: float, settings) -> Judgement:
+def judge_fields(fields: dict, reference_ha: float | None, threshold_mha: float, settings,
+                 uncertainty_ha: float | None = None) -> Judgement:
     """The per-task verdict of a finished task's ``fields`` (status, energy_ha, stderr_ha, converged)
     against the primary reference energy (Eh) and a threshold (mHa), judged with ``settings``
     (confidence, require_converged).  Shared by the gate and :func:`benchsuite.api.judge`."""
     return verdict(fields.get("status", "error"), fields.get("energy_ha"), reference_ha, threshold_mha,
-                   fields.get("stderr_ha"), settings.confidence, fields.get("converged"), settings.require_converged)
+                   fields.get("stderr_ha"), settings.confidence, fields.get("converged"), settings.require_converged,
+                   uncertainty_ha)
 
 
 def _decided(fields: dict, primary, method_obj) -> dict:
@@ -51,6 +70,8 @@ def _decided(fields: dict, primary, method_obj) -> dict:
     lowest state (:func:`benchsuite.runner.judged_fields`, the same decision as ``execute``)."""
     from benchsuite.runner import judged_fields
 
+    if primary is not None and getattr(primary, "uncertainty_ha", None) is not None:
+        primary = None   # a DMRG reference is not exact: no below-exact / wrong-state from energies
     reference = None if primary is None else primary.energy_ha
     sector = None if primary is None else getattr(primary, "sector_lowest_ha", None)
     return judged_fields(fields, reference, sector, bool(getattr(method_obj, "variational", False)))
@@ -65,8 +86,10 @@ def task_row(run_id: str, task, fields: dict, ladder, plan) -> ResultRow:
     fields = _decided(fields, primary if ref_ok else None, plan.methods.get(task.method, (None, None))[0])
     status = fields.get("status", "error")
     energy = fields.get("energy_ha")
-    judgement = judge_fields(fields, primary.energy_ha if ref_ok else None, threshold, plan.settings)
+    u = getattr(primary, "uncertainty_ha", None) if ref_ok else None
+    judgement = judge_fields(fields, primary.energy_ha if ref_ok else None, threshold, plan.settings, u)
     problem = fields.get("problem", {})
+    review = review_note(energy, primary.energy_ha, u) if ref_ok else ""
     return ResultRow(
         run_id=run_id, task_key=task.key, case=task.case.name, basis=task.basis.label,
         encoding=task.encoding.label, method=task.method, options=dict(task.options),
@@ -75,7 +98,7 @@ def task_row(run_id: str, task, fields: dict, ladder, plan) -> ResultRow:
         reference_energy_ha=primary.energy_ha if ref_ok else None,
         error_mha=judgement.error_mha, threshold_mha=threshold, converged=fields.get("converged"),
         iterations=fields.get("iterations"), seconds=float(fields.get("seconds", 0.0)),
-        message=fields.get("message", "") or judgement.message,
+        message="; ".join(m for m in (fields.get("message", "") or judgement.message, review) if m),
         n_qubits=problem.get("n_qubits"), n_terms=problem.get("n_terms"),
         one_norm_ha=problem.get("one_norm_ha"), qwc_groups=problem.get("qwc_groups"),
         resources=fields.get("resources", {}), metadata=fields.get("metadata", {}),
@@ -92,7 +115,8 @@ def final_rows(rows: list[ResultRow], settings) -> list[ResultRow]:
     Only the verdict, and for a changed verdict the message, can differ from the input.
     """
     per_task = [verdict(r.status, r.energy_ha, r.reference_energy_ha, r.threshold_mha, r.stderr_ha,
-                        settings.confidence, r.converged, settings.require_converged) for r in rows]
+                        settings.confidence, r.converged, settings.require_converged, reference_uncertainty(r))
+                for r in rows]
     final = stochastic_verdicts(per_task, settings.confidence, settings.multiple_testing)
     out = []
     for row, j in zip(rows, final):
