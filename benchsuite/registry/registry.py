@@ -14,7 +14,8 @@ appears twice anywhere is an input error naming both files.
 Suite file fields: ``name``, ``description``, ``cases`` (case names, scan
 names meaning every point, or shell-style patterns such as ``"h2o-*"``),
 optional ``basis`` (run every case in this basis rather than its first one)
-and ``threshold_mha`` (the pass threshold for this suite).
+``threshold_mha`` (the pass threshold for this suite) and ``exclude_tags`` (cases carrying any of
+these tags are left out, e.g. ``all`` leaves out the ``beyond-exact`` cases).
 """
 
 from __future__ import annotations
@@ -55,6 +56,7 @@ class Suite:
     path: Path
     basis: str | None = None
     threshold_mha: float | None = None
+    exclude_tags: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -173,14 +175,15 @@ class Registry:
             if not matched:
                 raise InputError(f"{pat!r} matches no case", suite.path, "cases")
             for case in matched:
-                seen.setdefault(case.name, case)
+                if not set(case.tags) & set(suite.exclude_tags):
+                    seen.setdefault(case.name, case)
         label = basis or suite.basis
         return [SuiteEntry(case=c, basis=c.basis(label)) for c in seen.values()]
 
 
 def _parse_suite(path: Path) -> Suite:
     raw = read_toml(path)
-    unknown = set(raw) - {"name", "description", "cases", "basis", "threshold_mha"}
+    unknown = set(raw) - {"name", "description", "cases", "basis", "threshold_mha", "exclude_tags"}
     if unknown:
         raise InputError(f"unknown field(s) {sorted(unknown)}", path, sorted(unknown)[0])
     for key in ("name", "cases"):
@@ -199,4 +202,6 @@ def _parse_suite(path: Path) -> Suite:
         basis = check_type(basis, str, path, "basis", "a basis name").lower()
     return Suite(name=check_type(raw["name"], str, path, "name", "a string"),
                  description=check_type(raw.get("description", ""), str, path, "description", "a string"),
-                 patterns=tuple(patterns), path=path, basis=basis, threshold_mha=threshold)
+                 patterns=tuple(patterns), path=path, basis=basis, threshold_mha=threshold,
+                 exclude_tags=tuple(check_type(raw.get("exclude_tags", []), list, path, "exclude_tags",
+                                               "a list of tags")))
