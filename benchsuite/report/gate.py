@@ -31,7 +31,9 @@ def task_document(row) -> dict:
     return {"case": row.case, "basis": row.basis, "space": row.space, "encoding": row.encoding,
             "n_qubits": row.n_qubits, "method": row.method, "options": row.options,
             "energy_ha": row.energy_ha, "stderr_ha": row.stderr_ha,
-            "reference": {"method": row.reference_method, "energy_ha": row.reference_energy_ha},
+            "reference": {"method": row.reference_method, "energy_ha": row.reference_energy_ha,
+                          "uncertainty_ha": _reference(row).get("uncertainty_ha"),
+                          "review": _reference(row).get("review", "")},
             "error_mha": row.error_mha, "status": row.status, "verdict": row.verdict,
             "threshold_mha": row.threshold_mha, "converged": row.converged, "iterations": row.iterations,
             "seconds": row.seconds, "resources": row.resources, "message": row.message,
@@ -45,13 +47,23 @@ def run_document(run, rows: list, gate: dict) -> dict:
             "results": [task_document(r) for r in rows]}
 
 
+def _reference(row) -> dict:
+    """The stored primary-reference record (rung, uncertainty u in Eh, review note), or {}."""
+    return (row.secondary or {}).get("reference") or {}
+
+
+def _u_text(row) -> str:
+    u = _reference(row).get("uncertainty_ha")
+    return f" (u = {1000 * u:.4f} mHa)" if u else ""
+
+
 def _fmt(x, spec):
     return "n/a" if x is None else format(x, spec)
 
 
 def failure_message(row) -> str:
     return (f"{row.verdict}: E({row.method}) = {_fmt(row.energy_ha, '.10f')} Eh, "
-            f"E({row.reference_method or 'reference'}) = {_fmt(row.reference_energy_ha, '.10f')} Eh, "
+            f"E({row.reference_method or 'reference'}) = {_fmt(row.reference_energy_ha, '.10f')} Eh{_u_text(row)}, "
             f"error = {_fmt(row.error_mha, '+.4f')} mHa (threshold {row.threshold_mha:.4f} mHa)"
             + (f", sigma = {1000 * row.stderr_ha:.4f} mHa" if row.stderr_ha else ""))
 
