@@ -686,7 +686,9 @@ class _AdaptGrowth:
             report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
             if norm < threshold:
                 self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
-                                     f"{threshold:g} after {len(self.chosen)} operators")
+                                     f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
+                                     "of the pool, not necessarily the ground state)")
+                self.setup.notes.append(self.stop_message)
                 return "converged"
             if len(self.chosen) >= cap:
                 self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
