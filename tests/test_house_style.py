@@ -21,7 +21,6 @@ MAX_LINES = 50
 KERNELS = {
     "methods/ucc.py:minimise": "quasi-Newton optimisation of the exponential product (BFGS loop)",
     "methods/ucc.py:_polish": "Newton polish of the converged amplitudes",
-    "methods/ucc.py:run": "the ADAPT-VQE iteration (gradient pick, re-optimisation, stop rules)",
     "qubit/sector.py:davidson": "Davidson eigensolver with restarts",
     "qubit/sector.py:operator": "sector matrix-vector product in packed Pauli form",
     "qubit/majorana.py:spin_free_pauli": "Pauli strings of the spin-free one- and two-body operators",

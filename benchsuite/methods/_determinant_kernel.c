@@ -1,11 +1,11 @@
-/* The two loops of benchsuite.methods.determinant.ExponentialProduct (see that module's docstring).
+/* The loops of benchsuite.methods.determinant.ExponentialProduct (see that module's docstring).
  *
  * Built at install time by setup.py as benchsuite/methods/_determinant_kernel<EXT_SUFFIX> (optional:
  * an install without a compiler still succeeds), or at first use into the user's cache; loaded with
  * ctypes, so this file has no Python module initialisation.  Arrays are C-contiguous float64/int64
  * whose lengths determinant.py checks before every call:
  *   psi, lam: dimension;  off: nf + 1 (off[0] = 0, ascending);  ii, jj, sg: off[nf];
- *   cs, sn, gf: nf;  every ii[k], jj[k] in 0 .. dimension - 1.
+ *   cs, sn, gf: nf;  psi/hpsi of bs_pool_gradients: dimension;  every ii[k], jj[k] in 0 .. dimension - 1.
  */
 #include <stdint.h>
 
@@ -50,6 +50,21 @@ void bs_backward(double *psi, double *lam, int64_t nf, const int64_t *off, const
                 lam[i] = c * li + t * lj;
                 lam[j] = c * lj - t * li;
             }
+        }
+        gf[f] = 2.0 * g;
+    }
+}
+
+/* pool gradients at one state: gf[m] = 2 <hpsi|tau_m|psi> = 2 sum_k sg[k] (hpsi[i] psi[j] - hpsi[j] psi[i])
+ * over the pairs off[m] .. off[m+1] of generator m (the commutator form <psi|[H, tau_m]|psi>) */
+void bs_pool_gradients(const double *psi, const double *hpsi, int64_t nf, const int64_t *off,
+                       const int64_t *ii, const int64_t *jj, const double *sg, double *gf)
+{
+    for (int64_t f = 0; f < nf; f++) {
+        double g = 0.0;
+        for (int64_t k = off[f]; k < off[f + 1]; k++) {
+            const int64_t i = ii[k], j = jj[k];
+            g += sg[k] * (hpsi[i] * psi[j] - hpsi[j] * psi[i]);
         }
         gf[f] = 2.0 * g;
     }

@@ -364,6 +364,8 @@ def _bind(lib: ctypes.CDLL) -> ctypes.CDLL:
     lib.bs_forward.argtypes = [ptr, n, ptr, ptr, ptr, ptr, ptr, ptr]
     lib.bs_backward.restype = None
     lib.bs_backward.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr, ptr, ptr]
+    lib.bs_pool_gradients.restype = None
+    lib.bs_pool_gradients.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr]
     lib.bs_source_sha256.restype = ctypes.c_char_p
     lib.bs_source_sha256.argtypes = []
     return lib
@@ -505,7 +507,25 @@ def c_backward(table: PairTable, psi, lam, cos, sin, gradient) -> None:
     _KERNEL["lib"].bs_backward(*args)
 
 
+def c_pool_gradients(table: PairTable, psi: np.ndarray, hpsi: np.ndarray, gradient: np.ndarray) -> None:
+    """The C pool sweep: ``gradient[m] = 2 <hpsi|tau_m|psi>`` for every factor m of ``table``, arrays checked."""
+    nf = table.n_factors
+    args = (_require("psi", psi, table.dimension, np.float64), _require("hpsi", hpsi, table.dimension, np.float64),
+            nf, *table.pointers(), _require("gradient", gradient, nf, np.float64, writable=True))
+    _KERNEL["lib"].bs_pool_gradients(*args)
+
+
 # -- products of exponentials ------------------------------------------------------
+
+
+def _checked_backend(backend: str | None) -> str:
+    """``backend`` (default: :func:`kernel_backend`), refused unless 'c' (and loaded) or 'numpy'."""
+    backend = backend or kernel_backend()
+    if backend not in ("c", "numpy"):
+        raise ValueError(f"kernel backend {backend!r}: 'c' or 'numpy'")
+    if backend == "c" and kernel_backend() != "c":
+        raise RuntimeError(kernel_note())
+    return backend
 
 
 class ExponentialProduct:
@@ -534,11 +554,7 @@ class ExponentialProduct:
                              "determinants")
         self.table = PairTable.build((space.pairs(exc) for exc in self.excitations), space.dimension)
         self._off, self._i, self._j, self._sig = self.table.offsets, self.table.i, self.table.j, self.table.sigma
-        self.backend = backend or kernel_backend()
-        if self.backend not in ("c", "numpy"):
-            raise ValueError(f"kernel backend {self.backend!r}: 'c' or 'numpy'")
-        if self.backend == "c" and kernel_backend() != "c":
-            raise RuntimeError(kernel_note())
+        self.backend = _checked_backend(backend)
 
     @property
     def n_factors(self) -> int:
@@ -604,22 +620,33 @@ class ExponentialProduct:
 
 
 class GeneratorPool:
-    """Many generators at once: the energy gradient 2 <H psi| tau_m |psi> of each at a state."""
+    """Many generators at once: the energy gradient of each appended at zero angle to the state psi.
 
-    def __init__(self, space: DeterminantSpace, excitations):
+    dE/dtheta_m = <psi|[H, tau_m]|psi> = 2 <H psi|tau_m|psi> (tau_m real anti-symmetric, H real
+    symmetric): one H|psi> for the whole pool, then one pass over each generator's pairs (the C
+    kernel, or the same sum in NumPy).  Built once per problem; the pair table is shared with the
+    products grown from it (:meth:`ExponentialProduct.extended`).
+    """
+
+    def __init__(self, space: DeterminantSpace, excitations, backend: str | None = None):
         self.space = space
         self.excitations = list(excitations)
-        parts = [space.pairs(e) for e in self.excitations]
-        self._i = np.concatenate([p[0] for p in parts]) if parts else np.zeros(0, np.int64)
-        self._j = np.concatenate([p[1] for p in parts]) if parts else np.zeros(0, np.int64)
-        self._sig = np.concatenate([p[2] for p in parts]) if parts else np.zeros(0)
-        self._owner = np.repeat(np.arange(len(parts)), [p[0].size for p in parts])
+        self.table = PairTable.build((space.pairs(e) for e in self.excitations), space.dimension)
+        self.backend = _checked_backend(backend)
+        self._owner = np.repeat(np.arange(len(self.excitations)), np.diff(self.table.offsets))
 
     def __len__(self) -> int:
         return len(self.excitations)
 
     def gradients(self, psi: np.ndarray, hpsi: np.ndarray) -> np.ndarray:
-        w = self._sig * (hpsi[self._i] * psi[self._j] - hpsi[self._j] * psi[self._i])
+        psi = np.ascontiguousarray(psi, dtype=np.float64)
+        hpsi = np.ascontiguousarray(hpsi, dtype=np.float64)
+        if self.backend == "c":
+            out = np.zeros(len(self))
+            c_pool_gradients(self.table, psi, hpsi, out)
+            return out
+        t = self.table
+        w = t.sigma * (hpsi[t.i] * psi[t.j] - hpsi[t.j] * psi[t.i])
         return 2.0 * np.bincount(self._owner, weights=w, minlength=len(self))
 
 

@@ -204,6 +204,19 @@ def staircase_cost(excitations, hamiltonian) -> tuple[int, int, str]:
     return cnots, cnots, label
 
 
+# -- signs of life -------------------------------------------------------------------------
+
+#: Callables hearing ``report_progress(**fields)`` from a long method (ADAPT: iteration, energy_ha,
+#: gradient_norm); a worker may append one that forwards the fields to the parent's display.
+PROGRESS_LISTENERS: list = []
+
+
+def report_progress(**fields) -> None:
+    """Pass one progress record to every listener (none by default: a no-op)."""
+    for listener in PROGRESS_LISTENERS:
+        listener(fields)
+
+
 # -- optimisation ------------------------------------------------------------------------
 
 
@@ -602,10 +615,13 @@ class AdaptVQE:
     options = (
         Option("gradient_threshold", float, 1e-3, "stop when the Euclidean norm of the pool gradients is below this",
                greater_than=0.0),
-        Option("max_operators", int, 200, "cap on the number of operators added", minimum=0),
+        Option("max_operators", int, 400, "cap on the number of operators added", minimum=0),
         _MAX_ITER,
-        Option("gradient_tolerance", float, 1e-6, "tolerance of each re-optimisation (gradient norm, Eh)",
+        Option("gradient_tolerance", float, 1e-6, "tolerance of the final optimisation (gradient norm, Eh)",
                greater_than=0.0),
+        Option("growth_tolerance", float, 1e-4, "tolerance of the re-optimisation after each addition "
+               "(gradient norm, Eh; never below gradient_tolerance); the last product is then optimised "
+               "to gradient_tolerance", greater_than=0.0),
         Option("pool", str, "gsd", "sd: spin-orbital singles and doubles from the reference; gsd: "
                "generalised spin-orbital singles and doubles", choices=("sd", "gsd")),
     )
@@ -621,51 +637,91 @@ class AdaptVQE:
         else:
             candidates = (generalised_singles(n, ALPHA) + generalised_singles(n, BETA)
                           + generalised_doubles(n))
-        pool = GeneratorPool(setup.space, candidates)
-        chosen: list[int] = []
-        product = ExponentialProduct(setup.space, [], reference=setup.reference)
-        fit = minimise(product, setup.ham, np.zeros(0), options["gradient_tolerance"], 1)
-        trajectory, norms, largest = [setup.hf_energy], [], []
-        total_iterations, evaluations = 0, 0
-        converged = out_of_time = False
-        while True:
-            grads = pool.gradients(fit.state, setup.ham.apply(fit.state))
-            norm = float(np.linalg.norm(grads))
-            norms.append(norm)
-            if norm < options["gradient_threshold"]:
-                converged = True
-                break
-            if len(chosen) >= options["max_operators"]:
-                setup.notes.append(f"operator cap {options['max_operators']} reached with pool gradient "
-                                   f"norm {norm:.2e}")
-                break
-            if setup.deadline is not None and time.perf_counter() > setup.deadline:
-                out_of_time = True
-                break
-            pick = int(np.argmax(np.abs(grads)))
-            largest.append(float(abs(grads[pick])))
-            chosen.append(pick)
-            product = ExponentialProduct(setup.space, [candidates[m] for m in chosen], reference=setup.reference)
-            fit = minimise(product, setup.ham, np.append(fit.x, 0.0), options["gradient_tolerance"],
-                           options["max_iterations"], setup.deadline)
-            total_iterations += fit.iterations
-            evaluations += fit.evaluations
-            trajectory.append(fit.energy)
-            if fit.out_of_time:
-                out_of_time = True
-                break
-        fit.iterations, fit.evaluations = total_iterations, evaluations
-        fit.converged = converged and fit.converged
-        fit.out_of_time = out_of_time
-        if converged and not fit.converged:
+        pool = GeneratorPool(setup.space, candidates)          # built once, reused every iteration
+        growth = _AdaptGrowth(setup, pool, options)
+        stop = growth.grow()
+        fit = growth.finish()
+        fit.converged = stop == "converged" and fit.converged
+        fit.out_of_time = fit.out_of_time or stop == "out of time"
+        if stop == "converged" and not fit.converged:
             setup.notes.append("last re-optimisation did not reach its gradient tolerance")
+        product = growth.product
         result = _result(problem, setup, product, fit, f"ADAPT ({options['pool']} pool)", {
-            "pool": options["pool"], "pool_size": len(pool), "adapt_iterations": len(chosen),
-            "operator_sequence": [candidates[m].label() for m in chosen],
-            "energy_trajectory": trajectory, "pool_gradient_norms": norms,
-            "selected_gradients": largest, "optimizer_iterations": total_iterations})
-        result.iterations = len(chosen)
+            "pool": options["pool"], "pool_size": len(pool), "adapt_iterations": len(growth.chosen),
+            "stop_reason": growth.stop_message, "remaining_pool_gradient_norm": growth.norms[-1],
+            "operator_sequence": [candidates[m].label() for m in growth.chosen],
+            "energy_trajectory": growth.trajectory, "pool_gradient_norms": growth.norms,
+            "selected_gradients": growth.largest, "optimizer_iterations": fit.iterations})
+        result.iterations = len(growth.chosen)
         return result
+
+
+class _AdaptGrowth:
+    """The ADAPT loop: pool gradients at the current state, append the largest, re-optimise warm.
+
+    Each re-optimisation starts from the previous angles with the new one at zero and stops at
+    ``growth_tolerance`` (a loose gradient norm: the next pool screening only needs the state,
+    and the angles are refined again at every later addition); :meth:`finish` then optimises the
+    final product to ``gradient_tolerance``.
+    """
+
+    def __init__(self, setup: _Setup, pool: GeneratorPool, options: dict):
+        self.setup, self.pool, self.options = setup, pool, options
+        self.tight = options["gradient_tolerance"]
+        self.loose = max(options["growth_tolerance"], self.tight)
+        self.chosen: list[int] = []
+        self.product = ExponentialProduct(setup.space, [], reference=setup.reference)
+        self.fit = minimise(self.product, setup.ham, np.zeros(0), self.tight, 1)
+        self.trajectory, self.norms, self.largest = [setup.hf_energy], [], []
+        self.iterations = self.evaluations = 0
+        self.stop_message = ""
+
+    def grow(self) -> str:
+        """Add operators until a stop; returns 'converged', 'cap' or 'out of time'."""
+        threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
+        while True:
+            grads = self.pool.gradients(self.fit.state, self.setup.ham.apply(self.fit.state))
+            norm = float(np.linalg.norm(grads))
+            self.norms.append(norm)
+            report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
+            if norm < threshold:
+                self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
+                                     f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
+                                     "of the pool, not necessarily the ground state)")
+                self.setup.notes.append(self.stop_message)
+                return "converged"
+            if len(self.chosen) >= cap:
+                self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
+                                     f"{norm:.2e} (threshold {threshold:g})")
+                self.setup.notes.append(self.stop_message)
+                return "cap"
+            if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
+                self.stop_message = "time budget reached while growing"
+                return "out of time"
+            pick = int(np.argmax(np.abs(grads)))
+            self.largest.append(float(abs(grads[pick])))
+            self.chosen.append(pick)
+            self.product = ExponentialProduct(self.setup.space, [self.pool.excitations[m] for m in self.chosen],
+                                              reference=self.setup.reference)
+            self._optimise(np.append(self.fit.x, 0.0), self.loose)
+            self.trajectory.append(self.fit.energy)
+            if self.fit.out_of_time:
+                self.stop_message = "time budget reached while re-optimising"
+                return "out of time"
+
+    def _optimise(self, x0, tolerance: float) -> None:
+        self.fit = minimise(self.product, self.setup.ham, x0, tolerance, self.options["max_iterations"],
+                            self.setup.deadline)
+        self.iterations += self.fit.iterations
+        self.evaluations += self.fit.evaluations
+
+    def finish(self) -> Fit:
+        """The final product optimised to ``gradient_tolerance`` (warm), with the run's totals."""
+        if self.chosen and not self.fit.out_of_time and self.loose > self.tight:
+            self._optimise(self.fit.x, self.tight)
+            self.trajectory[-1] = self.fit.energy     # the same product, angles finished
+        self.fit.iterations, self.fit.evaluations = self.iterations, self.evaluations
+        return self.fit
 
 
 METHODS = (UCCSDVQE, UpCCGSDVQE, AdaptVQE)
