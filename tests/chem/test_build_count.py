@@ -30,5 +30,5 @@ def test_smoke_suite_builds_each_molecule_once(registry, ladder_cache, monkeypat
     for case, basis in entries:
         build_problem(case, basis.label, cache=ladder_cache)
     distinct = {(c.symbols, tuple(map(tuple, c.coords_bohr())), c.charge, c.spin, b.label) for c, b in entries}
-    assert first <= 2 * len(distinct), (first, len(distinct))   # without symmetry copies build again
+    assert first == len(distinct), (first, len(distinct))          # once per geometry and basis (was 2x)
     assert len(calls) == first                                    # a second pass builds nothing new
