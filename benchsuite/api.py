@@ -218,12 +218,15 @@ def references(problem: PreparedProblem) -> References:
 
 def solve(case: str | Case, method: str, basis: str | None = None, encoding: Encoding = Encoding(),
           options: dict[str, str] | None = None, seed: int = 0, timeout_s: float | None = None,
-          cache_dir: str | Path | None = None, no_cache: bool = False, registry: Registry | None = None):
+          cache_dir: str | Path | None = None, no_cache: bool = False, registry: Registry | None = None,
+          shots: int | None = None, shot_allocation: str = "uniform"):
     """Run one method (a spec as on the command line) on one case in an isolated worker, beside its
     FCI/CASCI reference; returns ``(PreparedProblem, runner.Outcome)``.
 
     Options and ``timeout_s`` (seconds, > 0) are checked before any work; the outcome's status is
     the gate's (``ok``, ``below-exact``, ``wrong-state``, ``error``, ``timeout``, ``invalid``).
+    ``shots`` passes the method's state through the measurement stage
+    (:mod:`benchsuite.qubit.measurement`; ``shot_allocation`` uniform or proportional).
     """
     from benchsuite.chem.cache import DiskCache, default_cache_dir
     from benchsuite.methods.base import resolve_options
@@ -237,6 +240,7 @@ def solve(case: str | Case, method: str, basis: str | None = None, encoding: Enc
         resolve_options(method_obj, dict(options or {}))      # reject bad options before any work
     if timeout_s is not None and timeout_s <= 0:
         raise InputError("must be positive", field="--timeout-s")
+    shot_plan = RunSettings(shots=shots, shot_allocation=shot_allocation).shot_plan()
     cache = DiskCache(None if no_cache else str(cache_dir or default_cache_dir()))
     prepared = _build(case, basis, encoding.check(), cache=cache, seed=seed, time_budget_s=timeout_s)
     if method_obj is None:
@@ -244,7 +248,7 @@ def solve(case: str | Case, method: str, basis: str | None = None, encoding: Enc
     ref = prepared.reference
     return prepared, execute(method_obj, prepared.problem, options or {}, timeout_s=timeout_s,
                              exact_ha=None if ref is None else ref.energy_ha,
-                             sector_ha=None if ref is None else ref.sector_lowest_ha)
+                             sector_ha=None if ref is None else ref.sector_lowest_ha, shots=shot_plan)
 
 
 # -- verdicts ------------------------------------------------------------------------
@@ -353,7 +357,8 @@ def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str
                 basis: str | None = None, options: dict[str, dict[str, Any]] | None = None,
                 encoding: Encoding = Encoding(), threshold_mha: float | None = None, workers: int = 1,
                 timeout_s: float | None = None, db: str | Path | None = None,
-                cache_dir: str | Path | None = None, baseline: str | None = None, seed: int = 0):
+                cache_dir: str | Path | None = None, baseline: str | None = None, seed: int = 0,
+                shots: int | None = None, shot_allocation: str = "uniform"):
     """Run the gate (every method on every selected case) and return its results as a DataFrame.
 
     ``methods`` are specs as on the command line (built-in name, entry-point name or
@@ -361,7 +366,8 @@ def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str
     overrides every case's threshold; ``timeout_s`` is each task's time budget in seconds; ``workers``
     worker processes run the grid.  The run is stored in
     the results database ``db`` (default ``$BENCHSUITE_DB`` or ``.benchsuite/results.sqlite``);
-    ``baseline`` (a run id, prefix or ``latest``) adds a regression check.  The frame has one row
+    ``baseline`` (a run id, prefix or ``latest``) adds a regression check; ``shots`` measures every
+    method's state with that many shots (``shot_allocation`` uniform or proportional).  The frame has one row
     per task (columns as ``benchsuite export``: ``energy_ha``, ``error_mha``, ``verdict``, ...);
     ``frame.attrs`` holds ``run_id``, ``passed`` and the decision's ``reasons``.
     """
@@ -372,7 +378,7 @@ def run_methods(methods: list[str], *, suite: str | None = None, cases: list[str
 
     items = [f"{m}.{k}={v}" for m, opts in (options or {}).items() for k, v in opts.items()]
     settings = RunSettings(basis=basis, threshold_mha=threshold_mha, timeout_s=timeout_s,
-                           encoding=asdict(encoding))
+                           encoding=asdict(encoding), shots=shots, shot_allocation=shot_allocation)
     req = RunRequest(suite=suite, cases=None if suite else list(cases or []), methods=list(methods),
                      option_items=items, settings=settings, seed=seed, workers=workers,
                      db=None if db is None else Path(db), cache_dir=None if cache_dir is None else Path(cache_dir),

@@ -94,7 +94,26 @@ class ScfSummary:
         return cls(**d)
 
 
+#: Molecules built in this process, by (atoms, coordinates, charge, spin, basis, verbosity): a
+#: ``pyscf.gto.Mole`` is built once per (case geometry, basis) and shared read-only (callers copy to change).
+_BUILT_MOLES: dict = {}
+_BUILT_MOLES_LIMIT = 128
+
+
 def build_mole(case: Case, basis: Basis, verbose: int = 0):
+    """:func:`_build_mole`, memoised per process (see :data:`_BUILT_MOLES`)."""
+    key = (tuple(case.symbols), tuple(tuple(map(float, xyz)) for xyz in case.coords_bohr()), case.charge,
+           case.spin, repr(basis.for_pyscf()), verbose)
+    mol = _BUILT_MOLES.get(key)
+    if mol is None:
+        mol = _build_mole(case, basis, verbose)
+        if len(_BUILT_MOLES) >= _BUILT_MOLES_LIMIT:
+            _BUILT_MOLES.pop(next(iter(_BUILT_MOLES)))
+        _BUILT_MOLES[key] = mol
+    return mol
+
+
+def _build_mole(case: Case, basis: Basis, verbose: int = 0):
     """The PySCF molecule, in bohr, in PySCF's symmetry frame with its point group detected.
 
     A basis missing an element is an input error.

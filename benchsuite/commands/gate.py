@@ -64,6 +64,19 @@ def _add_execution(p) -> None:
                    help="per reference ladder (default 1800 s): a stuck SCF cannot hold up the run")
     p.add_argument("--max-determinants", type=int, default=5_000_000,
                    help="skip FCI/CASCI above this many determinants (default 5,000,000)")
+    add_shot_options(p)
+
+
+def add_shot_options(p) -> None:
+    """``--shots`` / ``--shot-allocation``: the measurement stage after each method (run and solve)."""
+    from benchsuite.qubit.measurement import ALLOCATIONS
+
+    p.add_argument("--shots", type=int, default=None, metavar="N",
+                   help="estimate each method's energy from N shots of its returned state (qubit-wise-commuting "
+                        "groups; judged as stochastic with its standard error); default: no sampling")
+    p.add_argument("--shot-allocation", choices=ALLOCATIONS, default=ALLOCATIONS[0],
+                   help="how the shots are split between groups: uniform (default) or proportional to each "
+                        "group's standard deviation on the state")
 
 
 def run_settings(args):
@@ -79,7 +92,7 @@ def run_settings(args):
                        multiple_testing=args.multiple_testing, allow_inconclusive=args.allow_inconclusive,
                        require_converged=args.require_converged, timeout_s=args.timeout_s,
                        reference_timeout_s=args.reference_timeout_s, max_determinants=args.max_determinants,
-                       max_memory_mb=args.max_memory_mb,
+                       max_memory_mb=args.max_memory_mb, shots=args.shots, shot_allocation=args.shot_allocation,
                        cases=tuple(str(p) for p in args.cases), case_file=tuple(str(p) for p in args.case_file),
                        encoding=asdict(enc), default_threshold_mha=default.value, default_threshold_source=(
                            None if default.value is None else default.source))

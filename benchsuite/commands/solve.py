@@ -8,6 +8,8 @@ from benchsuite.report.terminal import fixed_table
 
 
 def add_solve(sub) -> None:
+    from benchsuite.commands.gate import add_shot_options
+
     p = sub.add_parser("solve", help="run one method on one case beside its FCI/CASCI reference")
     p.add_argument("case", metavar="CASE", help="case name (see `benchsuite cases`)")
     p.add_argument("--method", required=True, help="built-in name, entry-point name or package.module:attr")
@@ -19,6 +21,7 @@ def add_solve(sub) -> None:
     p.add_argument("--timeout-s", type=finite_float, default=None,
                    help="stop the method after this many seconds (default $BENCHSUITE_TIMEOUT_S, "
                         "[tool.benchsuite] timeout_s, or 3600)")
+    add_shot_options(p)
     add_case_sources(p)
     add_cache(p)
     add_format(p)
@@ -51,7 +54,8 @@ def run_solve(args) -> int:
     options = parse_key_values(args.option, "--option")
     enc = Encoding(args.encoding, args.ordering, args.taper, args.drop_spin_parity_qubits)
     prepared, outcome = solve(reg.case(args.case), args.method, args.basis, enc, options, args.seed,
-                              args.timeout_s, cache_dir(args), args.no_cache, reg)
+                              args.timeout_s, cache_dir(args), args.no_cache, reg,
+                              shots=args.shots, shot_allocation=args.shot_allocation)
     record = solve_record(prepared, outcome)
     if args.format == "json":
         print_json(record)

@@ -143,7 +143,8 @@ def stored_keys(tasks, stored_label: str) -> list:
 
     if not tasks or stored_label == tasks[0].encoding.label or current_label(stored_label) != tasks[0].encoding.label:
         return list(tasks)
-    return [replace(t, key=task_key(t.case.name, t.basis.label, stored_label, t.method, t.options))
+    return [replace(t, key=task_key(t.case.name, t.basis.label, stored_label, t.method, t.options,
+                                            None if t.shots is None else t.shots.as_dict()))
             for t in tasks]
 
 

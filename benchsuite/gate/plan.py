@@ -36,7 +36,9 @@ class RunSettings:
     the project default (``[tool.benchsuite]`` or ``$BENCHSUITE_THRESHOLD_MHA``, see
     :mod:`benchsuite.defaults`) that replaces 1 kcal/mol where neither case nor suite sets one.  ``timeout_s`` / ``max_memory_mb`` per method task: None means the
     runner's defaults (3600 s, 4096 MiB).  ``multiple_testing`` is ``holm`` (family-wise error rate of the
-    run's stochastic fail claims) or ``bh`` (false-discovery rate).
+    run's stochastic fail claims) or ``bh`` (false-discovery rate).  ``shots`` (None: none) passes each
+    method's state through the measurement stage (:mod:`benchsuite.qubit.measurement`), its total split
+    between qubit-wise-commuting groups by ``shot_allocation`` (``uniform`` or ``proportional``).
     """
 
     basis: str | None = None
@@ -54,6 +56,19 @@ class RunSettings:
     encoding: dict = field(default_factory=lambda: asdict(Encoding()))
     default_threshold_mha: float | None = None
     default_threshold_source: str | None = None
+    shots: int | None = None
+    shot_allocation: str = "uniform"
+
+    def shot_plan(self):
+        """The measurement stage every method's state passes through (``--shots``), or None."""
+        from benchsuite.qubit.measurement import ShotPlan
+
+        if self.shots is None:
+            return None
+        plan = ShotPlan(self.shots, self.shot_allocation)
+        if plan.problems():
+            raise InputError(plan.problems()[0], field="--shots")
+        return plan
 
     def run_threshold(self) -> tuple[float, str]:
         """The run's headline threshold (mHa) and its source: the command line, then the project
@@ -188,8 +203,10 @@ def plan_run(registry, suite_name: str | None, case_names: list[str] | None, met
         methods[spec] = (obj, failure)
     for case, basis in entries:
         prepare(case, basis)                       # every case and basis checked before any work
+    shots = settings.shot_plan()
+    shot_doc = None if shots is None else shots.as_dict()
     tasks = [Task(case, basis, encoding, spec, options[spec],
-                  task_key(case.name, basis.label, encoding.label, spec, options[spec]))
+                  task_key(case.name, basis.label, encoding.label, spec, options[spec], shot_doc), shots)
              for case, basis in entries for spec in method_specs]
     suite = registry.suites.get(suite_name) if suite_name else None
     return RunPlan(suite, suite_name, list(case_names or []), entries, methods, options, encoding, settings,

@@ -30,6 +30,8 @@ from benchsuite.errors import InputError
 from benchsuite.methods.base import Option
 
 ENTRY_POINT_GROUP = "benchsuite.methods"
+#: The name the shot sampler had as a method; rows stored under it stay readable, resolving it explains.
+LEGACY_SAMPLED = "sampled"
 
 
 def _builtin_classes() -> dict:
@@ -161,6 +163,10 @@ def resolve_method(spec: str):
         if failure.name == spec:
             return None, failure
     known = builtin_names() + sorted(plugins)
+    if spec == LEGACY_SAMPLED:
+        raise InputError("'sampled' is no longer a method: shot sampling is the measurement stage; give the "
+                         "method whose state is measured and --shots N [--shot-allocation uniform|proportional] "
+                         "(e.g. --method exact-sector --shots 100000)", field="--method")
     raise InputError(f"unknown method {spec!r}; known: {known} (or give package.module:attr)",
                      field="--method")
 

@@ -139,16 +139,19 @@ def dumps(obj) -> str:
     return json.dumps(json_safe(obj), sort_keys=True, separators=(",", ":"), allow_nan=False)
 
 
-def task_key(case: str, basis: str, encoding: str, method: str, options: dict) -> str:
+def task_key(case: str, basis: str, encoding: str, method: str, options: dict, shots: dict | None = None) -> str:
     """Stable identity of a task: ``case/basis/encoding/method#<12 hex>``.
 
     The hex digits are the start of the SHA-256 of the canonical JSON of all
     five parts, so two tasks differing only in an option value get different
     keys while the readable part stays the same.  Dict order does not matter;
-    ``1`` and ``1.0`` are different option values.
+    ``1`` and ``1.0`` are different option values.  A task measured with shots
+    (``shots``: the measurement plan as a dict) reads ``method+shots`` and hashes the plan too;
+    unmeasured keys are those of every earlier version.
     """
-    digest = hashlib.sha256(dumps([case, basis, encoding, method, options]).encode()).hexdigest()
-    return f"{case}/{basis}/{encoding}/{method}#{digest[:12]}"
+    parts = [case, basis, encoding, method, options] + ([shots] if shots else [])
+    digest = hashlib.sha256(dumps(parts).encode()).hexdigest()
+    return f"{case}/{basis}/{encoding}/{method}{'+shots' if shots else ''}#{digest[:12]}"
 
 
 # -- how each field is stored -------------------------------------------------------

@@ -107,7 +107,7 @@ def test_1000_sampled_energies_of_an_exact_state(ladder_cache, registry):
     ground state, judged against FCI.  Task by task some estimates 'fail'; over the run, none does.
     (At a few hundred shots the method's own standard error is unreliable -- groups whose rare outcomes
     were never drawn report zero variance -- and no run-level procedure can repair invalid p-values.)"""
-    from benchsuite.methods.builtin import sample_energy
+    from benchsuite.qubit.measurement import ShotPlan, estimate_energy
     from benchsuite.methods.problem import build_problem
     from benchsuite.qubit.sector import sector_eigen
 
@@ -121,8 +121,8 @@ def test_1000_sampled_energies_of_an_exact_state(ladder_cache, registry):
     ref = prepared.reference.energy_ha
     judged = []
     for _ in range(1000):
-        est = sample_energy(ham.pauli.real(), psi, ham.n_qubits, 20_000, "uniform", rng)
-        judged.append(verdict("ok", est["energy_ha"], ref, THRESHOLD_MHA, est["stderr_ha"]))
+        est = estimate_energy(ham.pauli.real(), psi, ham.n_qubits, ShotPlan(20_000), rng)
+        judged.append(verdict("ok", est.energy_ha, ref, THRESHOLD_MHA, est.stderr_ha))
     per_task_fails = sum(j.verdict == "fail" for j in judged)
     final = stochastic_verdicts(judged, 0.95, "holm")
     assert per_task_fails >= 5                   # about 2.5 % of 1,000 without run-level control

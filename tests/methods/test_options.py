@@ -47,8 +47,6 @@ def test_bounds_are_inclusive_and_strings_are_converted():
     ("upccgsd-vqe", {"starts": 0}, "must be >= 1"),
     ("adapt-vqe", {"gradient_threshold": -1e-3}, "must be > 0.0"),
     ("adapt-vqe", {"max_operators": -1}, "must be >= 0"),
-    ("sampled", {"shots": 0}, "must be >= 1"),
-    ("sampled", {"state": "sampled"}, "must name a built-in method other than 'sampled'"),
     ("exact-sector", {"max_qubits": 0}, "must be >= 1"),
 ])
 def test_builtin_ranges(method, given, words):

@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from benchsuite.methods.base import SectorState
-from benchsuite.methods.builtin import ExactSector, SampledEnergy
+from benchsuite.methods.builtin import ExactSector
+from benchsuite.qubit.measurement import ShotPlan
 from benchsuite.methods.problem import Encoding, build_problem
 from benchsuite.methods.statecheck import StateError, check_state
 from benchsuite.runner import contract, execute
@@ -105,9 +106,10 @@ def test_no_state_is_recorded_as_unchecked(stretched):
                                            "declared": {"n_electrons": 2.0, "sz": 0.0, "s2": 0.0}}
 
 
-def test_sampled_returns_the_state_it_measured(stretched):
-    out = execute(SampledEnergy(), stretched.problem, {"shots": 1000}, exact_ha=stretched.reference.energy_ha,
-                  isolate=False)
+def test_measured_result_keeps_the_state_it_measured(stretched):
+    out = execute(ExactSector(), stretched.problem, exact_ha=stretched.reference.energy_ha,
+                  isolate=False, shots=ShotPlan(1000))
+    assert out.resources["shots"] == 1000 and out.stderr_ha > 0
     assert out.metadata["state_check"]["checked"] and out.metadata["state_check"]["off"] == []
 
 
