@@ -12,8 +12,12 @@ from benchsuite.chem.space import prepare
 from benchsuite.errors import InputError
 from benchsuite.methods.base import QubitProblem
 from benchsuite.qubit.encodings import DROP_LABEL, LEGACY_DROP_LABEL, check_register
-from benchsuite.qubit.hamiltonian import QubitHamiltonian, encode_integrals, drop_spin_parity_qubits
-from benchsuite.qubit.pauli import MAX_QUBITS
+from benchsuite.qubit.hamiltonian import (
+    QubitHamiltonian,
+    drop_spin_parity_qubits,
+    encode_integrals,
+)
+from benchsuite.qubit.register import Register
 from benchsuite.registry.case import Basis, Case
 
 
@@ -100,13 +104,15 @@ class EncodedCase:
 
 
 def check_case_register(case: Case, basis: Basis | str | None, enc: Encoding):
-    """The checks every build makes before any SCF: register, orbital space, the qubit limit.
-    Returns the prepared case (:func:`benchsuite.chem.space.prepare`)."""
+    """The checks every build makes before any SCF: register, orbital space, the register width
+    (:class:`~benchsuite.qubit.register.Register`; any width up to its bound, methods that hold a
+    state refuse wider ones themselves).  Returns the prepared case (:func:`benchsuite.chem.space.prepare`)."""
     enc.check()
     prep = prepare(case, basis)
-    if 2 * prep.space.n_orbitals > MAX_QUBITS:
-        raise InputError(f"{2 * prep.space.n_orbitals} qubits needed; at most {MAX_QUBITS} are supported",
-                         case.path, "basis")
+    try:
+        Register(2 * prep.space.n_orbitals)
+    except InputError as exc:
+        raise InputError(exc.detail, case.path, "basis") from None
     return prep
 
 

@@ -39,7 +39,8 @@ import numpy as np
 
 from benchsuite.errors import InputError
 from benchsuite.qubit import gf2
-from benchsuite.qubit.pauli import MAX_QUBITS
+from benchsuite.qubit.pauli import bit_of, pack_bits
+from benchsuite.qubit.register import Register
 
 ENCODINGS = ("jordan-wigner", "bravyi-kitaev", "parity")
 ORDERINGS = ("interleaved", "blocked")
@@ -119,22 +120,21 @@ class MajoranaTable:
 
 @lru_cache(maxsize=64)
 def majorana_table(encoding: str, n_modes: int) -> MajoranaTable:
-    if n_modes > MAX_QUBITS:
-        raise InputError(f"{n_modes} spin-orbitals: at most {MAX_QUBITS} qubits are supported",
-                         field="n_qubits")
+    """The Majorana strings of ``encoding`` on ``n_modes`` qubits, masks in the register's layout
+    (:mod:`benchsuite.qubit.register`: ``(2 n_modes,)`` up to 64 modes, ``(2 n_modes, n_words)`` beyond)."""
+    reg = Register(n_modes)
     a = encoding_matrix(encoding, n_modes)
     a_inv = gf2.inverse(a)
-    cols = gf2.columns_as_masks(a)
-    rows_inv = gf2.rows_as_masks(a_inv)
-    below = np.zeros(n_modes, dtype=np.uint64)  # p_j = XOR of rows k < j of A^-1
-    acc = np.uint64(0)
-    for j in range(n_modes):
-        below[j] = acc
-        acc ^= rows_inv[j]
-    x = np.repeat(cols, 2)
-    z = np.empty(2 * n_modes, dtype=np.uint64)
-    z[0::2] = below
-    z[1::2] = below ^ rows_inv
+    cols = pack_bits(a.T, reg)                       # mask j: column j of A
+    rows_inv = pack_bits(a_inv, reg)                 # mask j: row j of A^-1
+    prefix = np.cumsum(a_inv, axis=0) % 2            # XOR of rows 0..j of A^-1
+    below = np.zeros_like(a_inv)                     # p_j = XOR of rows k < j of A^-1
+    below[1:] = prefix[:-1]
+    below_m = pack_bits(below, reg)
+    x = np.repeat(cols, 2, axis=0)
+    z = np.empty_like(x)
+    z[0::2] = below_m
+    z[1::2] = below_m ^ rows_inv
     phase = np.tile(np.array([0, 1], dtype=np.int64), n_modes)
     for arr in (x, z, phase, cols):
         arr.setflags(write=False)
@@ -154,13 +154,22 @@ def occupation_masks(alpha_strings, beta_strings, n_orbitals: int, ordering: str
     """Mode occupation masks (bit j = n_j) for pairs of alpha and beta strings.
 
     ``alpha_strings``/``beta_strings`` are integer arrays of equal length whose
-    bit p says spatial orbital p is occupied with that spin.
+    bit p says spatial orbital p is occupied with that spin (uint64: orbitals 0..63 can be
+    occupied).  The masks are in the layout of the ``2 n_orbitals``-qubit register.
     """
     ia, ib = mode_indices(n_orbitals, ordering)
     a = np.asarray(alpha_strings, dtype=np.uint64)
     b = np.asarray(beta_strings, dtype=np.uint64)
-    out = np.zeros(np.broadcast(a, b).shape, dtype=np.uint64)
+    reg = Register(2 * n_orbitals)
     one = np.uint64(1)
+    if reg.wide:
+        a, b = np.broadcast_arrays(a.reshape(-1), b.reshape(-1))
+        bits = np.zeros((a.size, reg.n_qubits), dtype=np.uint8)
+        for p in range(min(n_orbitals, 64)):
+            bits[:, ia[p]] = (a >> np.uint64(p)) & one
+            bits[:, ib[p]] = (b >> np.uint64(p)) & one
+        return pack_bits(bits, reg)
+    out = np.zeros(np.broadcast(a, b).shape, dtype=np.uint64)
     for p in range(n_orbitals):
         sp = np.uint64(p)
         out |= ((a >> sp) & one) << np.uint64(ia[p])
@@ -169,11 +178,11 @@ def occupation_masks(alpha_strings, beta_strings, n_orbitals: int, ordering: str
 
 
 def encode_occupations(occupations, table: MajoranaTable) -> np.ndarray:
-    """Qubit basis states b = A n (mod 2) of mode occupation masks n."""
+    """Qubit basis states b = A n (mod 2) of mode occupation masks n (either layout)."""
     occ = np.asarray(occupations, dtype=np.uint64)
     out = np.zeros_like(occ)
-    one = np.uint64(1)
+    wide = Register(table.n_modes).wide
     for j in range(table.n_modes):
-        bit = (occ >> np.uint64(j)) & one
-        out ^= bit * table.columns[j]
+        bit = bit_of(occ, j, wide).astype(np.uint64)
+        out ^= (bit[..., None] if wide else bit) * table.columns[j]
     return out

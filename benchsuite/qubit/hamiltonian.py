@@ -29,16 +29,24 @@ from benchsuite.qubit.encodings import (
     majorana_table,
     occupation_masks,
 )
-from benchsuite.qubit.majorana import DROP_TOLERANCE, drop_small, spin_free_pauli, spin_square_pauli
+from benchsuite.qubit.majorana import (
+    DROP_TOLERANCE,
+    drop_small,
+    spin_free_pauli,
+    spin_square_pauli,
+)
 from benchsuite.qubit.pauli import (
-    MAX_QUBITS,
     PauliSum,
+    bit_of,
     compress_bits,
     expand_bits,
     i_power,
+    is_zero,
     parity,
     product_phase,
+    with_bit,
 )
+from benchsuite.qubit.register import Register
 
 SPIN_PARITY_DROP = "spin-parity-qubits-dropped"
 DROP_TOLERANCE_RULE = ("Pauli strings with |c| <= drop_tolerance dropped after merging; drop_tolerance = the SCF "
@@ -75,19 +83,23 @@ class Reduction:
     def n_removed(self) -> int:
         return len(self.qubits)
 
-    def labels(self) -> list[str]:
-        return [" ".join(f"Z{q}" for q in range(self.n_qubits_before) if (g >> q) & 1)
-                for g in self.generators]
+    @property
+    def register(self) -> Register:
+        return Register(self.n_qubits_before)
+
+    def _generator_masks(self) -> np.ndarray:
+        return self.register.masks(self.generators)
 
     def keep_states(self, states: np.ndarray) -> np.ndarray:
-        """Boolean mask of basis states in this step's symmetry sector."""
-        keep = np.ones(states.shape, dtype=bool)
-        for g, s in zip(self.generators, self.eigenvalues):
-            keep &= (1 - 2 * parity(states & np.uint64(g))) == s
+        """Boolean mask of basis states (masks of the register before this step) in this step's sector."""
+        wide = self.register.wide
+        keep = np.ones(states.shape[:1] if wide else states.shape, dtype=bool)
+        for g, s in zip(self._generator_masks(), self.eigenvalues):
+            keep &= (1 - 2 * parity(states & g, wide)) == s
         return keep
 
     def reduce_states(self, states: np.ndarray) -> np.ndarray:
-        return compress_bits(states, self.qubits)
+        return compress_bits(states, self.qubits, self.n_qubits_before)
 
     def apply(self, op: PauliSum, tol: float = DROP_TOLERANCE) -> PauliSum:
         """The operator restricted to this sector, on the remaining qubits.
@@ -96,36 +108,42 @@ class Reduction:
         """
         if op.n_qubits != self.n_qubits_before:
             raise ValueError(f"operator on {op.n_qubits} qubits, reduction expects {self.n_qubits_before}")
+        wide = op.wide
         x, z, c = op.x.copy(), op.z.copy(), op.coeffs.astype(np.complex128)
-        for g in self.generators:
-            if np.any(parity(x & np.uint64(g))):
+        gens = self._generator_masks()
+        for g in gens:
+            if np.any(parity(x & g, wide)):
                 raise ValueError("operator does not commute with the symmetry being fixed")
         if self.clifford:
-            for g, q in zip(self.generators, self.qubits):
-                xq = np.uint64(1 << q)
-                hit = ((z >> np.uint64(q)) & np.uint64(1)).astype(bool)
+            zero = self.register.masks([0])[0]
+            for g, q in zip(gens, self.qubits):
+                xq = self.register.qubit_mask([q])
+                hit = bit_of(z, q, wide)
                 # U_i P U_i = -P X_q Z^t for P anticommuting with X_q (P commutes with Z^t).
                 xh, zh = x[hit], z[hit]
-                k1 = product_phase(xh, zh, xq, np.uint64(0))
+                k1 = product_phase(xh, zh, xq, zero, wide)
                 x1 = xh ^ xq
-                k2 = product_phase(x1, zh, np.uint64(0), np.uint64(g))
-                x[hit], z[hit] = x1, zh ^ np.uint64(g)
+                k2 = product_phase(x1, zh, zero, g, wide)
+                x[hit], z[hit] = x1, zh ^ g
                 c[hit] = -c[hit] * i_power(k1 + k2)
+        x, z, c = self._fix_removed(x, z, c, wide)
+        n_before = self.n_qubits_before
+        return PauliSum(n_before - len(self.qubits), compress_bits(x, self.qubits, n_before),
+                        compress_bits(z, self.qubits, n_before), c, merge=True, tol=tol)
+
+    def _fix_removed(self, x, z, c, wide: bool):
+        """Replace the fixed Pauli (X after the Clifford, else Z) on each removed qubit by its eigenvalue."""
         fixed_x = self.clifford
         for q, s in zip(self.qubits, self.eigenvalues):
-            bit = np.uint64(1 << q)
-            on = (x if fixed_x else z) & bit
-            off = (z if fixed_x else x) & bit
-            if np.any(off):
+            on = bit_of(x if fixed_x else z, q, wide)
+            if np.any(bit_of(z if fixed_x else x, q, wide)):
                 raise ValueError(f"operator is not diagonal in the fixed Pauli on qubit {q}")
-            c = np.where(on != 0, c * s, c)
+            c = np.where(on, c * s, c)
             if fixed_x:
-                x = x & ~bit
+                x = with_bit(x, q, on, wide)
             else:
-                z = z & ~bit
-        n_after = self.n_qubits_before - len(self.qubits)
-        return PauliSum(n_after, compress_bits(x, self.qubits), compress_bits(z, self.qubits), c,
-                        merge=True, tol=tol)
+                z = with_bit(z, q, on, wide)
+        return x, z, c
 
     def lift(self, op: PauliSum) -> PauliSum:
         """Terms of a reduced operator written on the register before this step.
@@ -137,11 +155,17 @@ class Reduction:
         element <b_R ^ x| sigma(x, z) |b_R>: the lift relabels terms, it does
         not undo the reduction.
         """
-        x = expand_bits(op.x, self.qubits)
-        z = expand_bits(op.z, self.qubits)
-        for g, q in zip(self.generators, self.qubits):
-            x = x ^ (parity(x & np.uint64(g)).astype(np.uint64) << np.uint64(q))
-        return PauliSum(self.n_qubits_before, x, z, op.coeffs, merge=False)
+        n = self.n_qubits_before
+        wide = self.register.wide
+        x = expand_bits(op.x, self.qubits, n)
+        z = expand_bits(op.z, self.qubits, n)
+        for g, q in zip(self._generator_masks(), self.qubits):
+            x = with_bit(x, q, parity(x & g, wide).astype(bool), wide)
+        return PauliSum(n, x, z, op.coeffs, merge=False)
+
+    def labels(self) -> list[str]:
+        return [" ".join(f"Z{q}" for q in range(self.n_qubits_before) if (g >> q) & 1)
+                for g in self.generators]
 
     def as_dict(self) -> dict:
         return {"kind": self.kind, "n_qubits_before": self.n_qubits_before,
@@ -203,7 +227,7 @@ class QubitHamiltonian:
         """
         occ = occupation_masks(alpha_strings, beta_strings, self.n_orbitals, self.ordering)
         states = encode_occupations(occ, self.table)
-        keep = np.ones(states.shape, dtype=bool)
+        keep = np.ones(states.shape[0], dtype=bool)
         for red in self.reductions:
             inside = red.keep_states(states)
             keep_idx = np.flatnonzero(keep)
@@ -212,16 +236,18 @@ class QubitHamiltonian:
         return keep, states
 
     def hf_state(self) -> int:
-        """Basis state (integer, bit q = qubit q) of the SCF reference determinant.
+        """Basis state (Python integer, bit q = qubit q) of the SCF reference determinant.
 
         Raises ``ValueError`` if a reduction fixed a sector that excludes it.
         """
+        if self.n_alpha > 64:
+            raise ValueError(f"{self.n_alpha} alpha electrons: occupation strings hold at most 64")
         a = np.array([(1 << self.n_alpha) - 1], dtype=np.uint64)
         b = np.array([(1 << self.n_beta) - 1], dtype=np.uint64)
         keep, states = self.encode_states(a, b)
         if not keep[0]:
             raise ValueError("the reference determinant lies outside this Hamiltonian's symmetry sector")
-        return int(states[0])
+        return self.pauli.register.ints(states[:1])[0]
 
     def hf_bitstring(self) -> str:
         """The reference state as '0'/'1' characters, qubit 0 first."""
@@ -276,7 +302,7 @@ def bitstring(state: int, n_qubits: int) -> str:
     return "".join(str((int(state) >> q) & 1) for q in range(n_qubits))
 
 
-def _as_states(states) -> np.ndarray:
+def _as_states(states, register: Register) -> np.ndarray:
     if isinstance(states, str):
         states = [states]
     arr = list(states) if not isinstance(states, (int, np.integer)) else [states]
@@ -286,7 +312,7 @@ def _as_states(states) -> np.ndarray:
             out.append(sum(1 << q for q, ch in enumerate(s) if ch == "1"))
         else:
             out.append(int(s))
-    return np.array(out, dtype=np.uint64)
+    return register.masks(out)
 
 
 def diagonal_energy(pauli: PauliSum, states):
@@ -296,10 +322,14 @@ def diagonal_energy(pauli: PauliSum, states):
     returns a float for a single state.
     """
     single = isinstance(states, (int, np.integer, str))
-    b = _as_states(states)
-    diag = pauli.x == 0
+    wide = pauli.wide
+    b = _as_states(states, pauli.register)
+    diag = is_zero(pauli.x, wide)
     z, c = pauli.z[diag], pauli.coeffs[diag]
-    signs = 1 - 2 * parity(z[None, :] & b[:, None])
+    if wide:
+        signs = np.stack([1 - 2 * parity(z & row, True) for row in b])
+    else:
+        signs = 1 - 2 * parity(z[None, :] & b[:, None])
     e = np.real(signs @ c)
     return float(e[0]) if single else e
 
@@ -310,14 +340,12 @@ def encode_integrals(mo: MOIntegrals, encoding: str = "jordan-wigner", ordering:
 
     Built directly from the integrals through Majorana monomials
     (:func:`benchsuite.qubit.majorana.spin_free_pauli`), never through a
-    fermion-operator object.  2 * n_orbitals qubits, at most 64.
+    fermion-operator object.  2 * n_orbitals qubits, any width the register accepts
+    (:class:`~benchsuite.qubit.register.Register`).
     """
     check_encoding(encoding)
     check_ordering(ordering)
-    n_modes = 2 * mo.n_orbitals
-    if n_modes > MAX_QUBITS:
-        raise InputError(f"{n_modes} qubits needed; at most {MAX_QUBITS} are supported", field="n_qubits")
-    table = majorana_table(encoding, n_modes)
+    table = majorana_table(encoding, Register(2 * mo.n_orbitals).n_qubits)
     full = spin_free_pauli(mo.h1_ha, mo.eri_ha, mo.constant_ha, table, ordering, tol=0.0)
     pauli, dropped = drop_small(full, tol)
     return QubitHamiltonian(pauli=pauli, encoding=encoding, ordering=ordering, n_orbitals=mo.n_orbitals,

@@ -38,7 +38,8 @@ import numpy as np
 
 from benchsuite.chem.scf import CONV_TOL_HA
 from benchsuite.qubit.encodings import MajoranaTable, mode_indices
-from benchsuite.qubit.pauli import PauliSum, i_power, popcount
+from benchsuite.qubit.pauli import PauliSum, i_power, merge_terms, weight
+from benchsuite.qubit.register import Register
 
 #: Merged Pauli coefficients with |c| <= this (hartree) are dropped.  Rule: the SCF's
 #: energy convergence threshold (chem.scf.CONV_TOL_HA = 1e-10 Eh), the accuracy the
@@ -49,20 +50,68 @@ from benchsuite.qubit.pauli import PauliSum, i_power, popcount
 DROP_TOLERANCE = CONV_TOL_HA
 
 
-def xz_product(x1, z1, e1, x2, z2, e2):
-    """(i^e1 X^x1 Z^z1)(i^e2 X^x2 Z^z2) = i^e X^(x1^x2) Z^(z1^z2); returns (x, z, e)."""
-    return x1 ^ x2, z1 ^ z2, e1 + e2 + 2 * popcount(z1 & x2)
+def xz_product(x1, z1, e1, x2, z2, e2, wide: bool = False):
+    """(i^e1 X^x1 Z^z1)(i^e2 X^x2 Z^z2) = i^e X^(x1^x2) Z^(z1^z2); returns (x, z, e).
+    ``wide``: masks of shape (..., n_words) (see :mod:`benchsuite.qubit.register`)."""
+    return x1 ^ x2, z1 ^ z2, e1 + e2 + 2 * weight(z1 & x2, wide)
 
 
-def xz_to_sigma_phase(x, z, e) -> np.ndarray:
+def xz_to_sigma_phase(x, z, e, wide: bool = False) -> np.ndarray:
     """Exponent k with i^e X^x Z^z = i^k sigma(x, z)."""
-    return (e - popcount(x & z)) % 4
+    return (e - weight(x & z, wide)) % 4
 
 
-def _bilinears(table: MajoranaTable, modes_p: np.ndarray, modes_q: np.ndarray):
+def _bilinears(table: MajoranaTable, modes_p: np.ndarray, modes_q: np.ndarray, wide: bool = False):
     """XZ forms of B_PQ = c_P d_Q for index arrays of modes."""
     return xz_product(table.x[2 * modes_p], table.z[2 * modes_p], table.phase[2 * modes_p],
-                      table.x[2 * modes_q + 1], table.z[2 * modes_q + 1], table.phase[2 * modes_q + 1])
+                      table.x[2 * modes_q + 1], table.z[2 * modes_q + 1], table.phase[2 * modes_q + 1], wide)
+
+
+#: Wide registers: rows of the pair triangle per chunk of the two-body products, and the number of
+#: accumulated strings at which the chunks are merged (bounds the memory of a 120-qubit build).
+WIDE_ROWS_PER_CHUNK = 256
+WIDE_MERGE_EVERY = 6_000_000
+
+
+def _pair_products(a_idx, b_idx, gv, bx, bz, be, wide: bool):
+    """Strings and coefficients -G_ab/4 B_a B_b of the commuting pairs among (a_idx, b_idx)."""
+    xa, za, xb, zb = bx[a_idx], bz[a_idx], bx[b_idx], bz[b_idx]
+    commute = (weight(xa & zb, wide) + weight(za & xb, wide)) % 2 == 0
+    a_idx, b_idx, gv = a_idx[commute], b_idx[commute], gv[commute]
+    x4, z4, e4 = xz_product(xa[commute], za[commute], be[a_idx], xb[commute], zb[commute], be[b_idx], wide)
+    k4 = xz_to_sigma_phase(x4, z4, e4, wide)
+    if np.any(k4 % 2):
+        raise AssertionError("non-Hermitian product of commuting bilinears (internal error)")
+    return x4, z4, -0.25 * gv * (1 - k4)  # k4 in {0, 2}: i^k4 = 1 - k4
+
+
+def _two_body_narrow(g, bx, bz, be, screen):
+    """All pairs a < b of the same-spin pair list at once (one-word masks)."""
+    nn = g.shape[0]
+    g_pairs = np.block([[g, g], [g, g]])
+    a_idx, b_idx = np.triu_indices(2 * nn, 1)
+    gv = g_pairs[a_idx, b_idx]
+    big = np.abs(gv) > screen
+    return _pair_products(a_idx[big], b_idx[big], gv[big], bx, bz, be, False)
+
+
+def _two_body_wide(g, bx, bz, be, screen):
+    """Pairs a < b in chunks of :data:`WIDE_ROWS_PER_CHUNK` rows a, merged as they accumulate."""
+    nn = g.shape[0]
+    n_pairs = 2 * nn
+    cols = np.arange(n_pairs)
+    parts, held = [], 0
+    for a0 in range(0, n_pairs, WIDE_ROWS_PER_CHUNK):
+        rows = np.arange(a0, min(a0 + WIDE_ROWS_PER_CHUNK, n_pairs))
+        block = np.tile(g[rows % nn], (1, 2))
+        keep = (np.abs(block) > screen) & (cols[None, :] > rows[:, None])
+        r, b_idx = np.nonzero(keep)
+        parts.append(_pair_products(rows[r], b_idx, block[r, b_idx], bx, bz, be, True))
+        held += parts[-1][0].shape[0]
+        if held > WIDE_MERGE_EVERY and len(parts) > 1:
+            parts, held = [merge_terms(*(np.concatenate(p) for p in zip(*parts)))], 0
+            held = parts[0][0].shape[0]
+    return tuple(np.concatenate(p) for p in zip(*parts))
 
 
 def spin_free_pauli(h1: np.ndarray, eri: np.ndarray, constant: float, table: MajoranaTable,
@@ -83,6 +132,7 @@ def spin_free_pauli(h1: np.ndarray, eri: np.ndarray, constant: float, table: Maj
     if not np.allclose(h1, h1.T, atol=1e-10) or not np.allclose(eri, eri.transpose(1, 0, 2, 3), atol=1e-10):
         raise ValueError("integrals must be real and symmetric (restricted real orbitals)")
     ia, ib = mode_indices(n, ordering)
+    wide = Register(2 * n).wide
     coul = np.einsum("pprs->rs", eri)
     exch = np.einsum("rqqs->rs", eri)
     m = h1 + coul - 0.5 * exch
@@ -93,30 +143,19 @@ def spin_free_pauli(h1: np.ndarray, eri: np.ndarray, constant: float, table: Maj
     pp, qq = np.divmod(np.arange(n * n), n)
     big_p = np.concatenate([ia[pp], ib[pp]])
     big_q = np.concatenate([ia[qq], ib[qq]])
-    bx, bz, be = _bilinears(table, big_p, big_q)
+    bx, bz, be = _bilinears(table, big_p, big_q, wide)
     m_pairs = np.concatenate([m.ravel(), m.ravel()])
-    quad_k = (1 + be - popcount(bx & bz)) % 4
+    quad_k = (1 + be - weight(bx & bz, wide)) % 4
     if np.any(quad_k % 2):
         raise AssertionError("non-Hermitian one-body term (internal error)")
     quad_c = 0.5 * m_pairs * (1 - quad_k)  # quad_k in {0, 2}: i^quad_k = 1 - quad_k
 
     g = eri.reshape(n * n, n * n)
-    g_pairs = np.block([[g, g], [g, g]])
-    a_idx, b_idx = np.triu_indices(2 * n * n, 1)
-    gv = g_pairs[a_idx, b_idx]
-    big = np.abs(gv) > screen
-    a_idx, b_idx, gv = a_idx[big], b_idx[big], gv[big]
-    xa, za, xb, zb = bx[a_idx], bz[a_idx], bx[b_idx], bz[b_idx]
-    commute = (popcount(xa & zb) + popcount(za & xb)) % 2 == 0
-    a_idx, b_idx, gv = a_idx[commute], b_idx[commute], gv[commute]
-    x4, z4, e4 = xz_product(bx[a_idx], bz[a_idx], be[a_idx], bx[b_idx], bz[b_idx], be[b_idx])
-    k4 = xz_to_sigma_phase(x4, z4, e4)
-    if np.any(k4 % 2):
-        raise AssertionError("non-Hermitian product of commuting bilinears (internal error)")
-    quart_c = -0.25 * gv * (1 - k4)  # k4 in {0, 2}: i^k4 = 1 - k4
+    x4, z4, quart_c = (_two_body_wide if wide else _two_body_narrow)(g, bx, bz, be, screen)
 
-    x = np.concatenate([np.zeros(1, np.uint64), bx, x4])
-    z = np.concatenate([np.zeros(1, np.uint64), bz, z4])
+    zero = np.zeros((1,) + bx.shape[1:], np.uint64)
+    x = np.concatenate([zero, bx, x4])
+    z = np.concatenate([zero, bz, z4])
     c = np.concatenate([[e0], quad_c, quart_c])
     return PauliSum(2 * n, x, z, c, merge=True, tol=tol)
 
@@ -126,10 +165,9 @@ def drop_small(pauli: PauliSum, tol: float = DROP_TOLERANCE) -> tuple[PauliSum, 
 
     The identity is always kept.  The summed |c| bounds how far any energy moves.
     """
-    small = (np.abs(pauli.coeffs) <= tol) & ((pauli.x != 0) | (pauli.z != 0))
+    small = (np.abs(pauli.coeffs) <= tol) & ~pauli.identity_terms()
     dropped = float(np.abs(pauli.coeffs[small]).sum())
-    keep = ~small
-    return PauliSum(pauli.n_qubits, pauli.x[keep], pauli.z[keep], pauli.coeffs[keep], merge=False), dropped
+    return pauli.take(~small), dropped
 
 
 def ladder_words_pauli(table: MajoranaTable, modes, daggers, coeffs,
@@ -143,21 +181,22 @@ def ladder_words_pauli(table: MajoranaTable, modes, daggers, coeffs,
     modes = np.atleast_2d(np.asarray(modes, dtype=np.int64))
     daggers = np.atleast_2d(np.asarray(daggers, dtype=bool))
     coeffs = np.asarray(coeffs, dtype=np.complex128).reshape(-1)
-    n_words, k = modes.shape
+    n_ladder_words, k = modes.shape
+    wide = Register(table.n_modes).wide
     xs, zs, cs = [], [], []
     for choice in product((0, 1), repeat=k):
-        x = np.zeros(n_words, dtype=np.uint64)
-        z = np.zeros(n_words, dtype=np.uint64)
-        e = np.zeros(n_words, dtype=np.int64)
-        weight = coeffs * (0.5 ** k)
+        x = np.zeros((n_ladder_words,) + table.x.shape[1:], dtype=np.uint64)
+        z = np.zeros_like(x)
+        e = np.zeros(n_ladder_words, dtype=np.int64)
+        amp = coeffs * (0.5 ** k)
         for t, ch in enumerate(choice):
             idx = 2 * modes[:, t] + ch
-            x, z, e = xz_product(x, z, e, table.x[idx], table.z[idx], table.phase[idx])
+            x, z, e = xz_product(x, z, e, table.x[idx], table.z[idx], table.phase[idx], wide)
             if ch:  # d_j enters a+_j with -i and a_j with +i
-                weight = weight * np.where(daggers[:, t], -1j, 1j)
+                amp = amp * np.where(daggers[:, t], -1j, 1j)
         xs.append(x)
         zs.append(z)
-        cs.append(weight * i_power(xz_to_sigma_phase(x, z, e)))
+        cs.append(amp * i_power(xz_to_sigma_phase(x, z, e, wide)))
     if not xs:
         return PauliSum.identity(table.n_modes, complex(coeffs.sum()))
     return PauliSum(table.n_modes, np.concatenate(xs), np.concatenate(zs), np.concatenate(cs),
