@@ -23,7 +23,6 @@ KERNELS = {
     "methods/ucc.py:_polish": "Newton polish of the converged amplitudes",
     "qubit/sector.py:davidson": "Davidson eigensolver with restarts",
     "qubit/sector.py:operator": "sector matrix-vector product in packed Pauli form",
-    "qubit/majorana.py:spin_free_pauli": "Pauli strings of the spin-free one- and two-body operators",
 }
 
 #: Layer of each top-level unit of benchsuite/, lowest first (DEVELOPERS.md, "The pipeline").
