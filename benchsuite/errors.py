@@ -24,3 +24,9 @@ class InputError(Exception):
             where.append(f"field '{field}'")
         prefix = ": ".join(where)
         super().__init__(f"{prefix}: {message}" if prefix else message)
+
+
+class Refused(InputError):
+    """Code declined a problem beyond a limit it states (a register too wide, a determinant space
+    too large).  ``str()`` is the one-line reason; the runner records it as status ``error`` with
+    that reason and no traceback (the refusal is the method's answer, not a crash)."""

@@ -289,6 +289,7 @@ def _row(request, entry, problem, a, method: str, options: dict, suite: str | No
     from benchsuite import api
     from benchsuite.gate.judge import task_row
     from benchsuite.gate.plan import RunPlan
+    from benchsuite.methods.export import problem_figures
     from benchsuite.runner import Task
     from benchsuite.store.records import task_key
 
@@ -299,18 +300,9 @@ def _row(request, entry, problem, a, method: str, options: dict, suite: str | No
     task = Task(entry.case, entry.basis, enc, method, options,
                 task_key(entry.case.name, entry.basis.label, enc.label, method, options))
     started = request.node.stash.get(_ITEM_START, time.perf_counter())
-    fields = {**a.fields, "seconds": time.perf_counter() - started, "problem": _problem_figures(problem)}
+    fields = {**a.fields, "seconds": time.perf_counter() - started, "problem": problem_figures(problem)}
     fields["metadata"] = {**fields.get("metadata", {}), "pytest_node": request.node.nodeid}
     return task_row("pending", task, fields, problem.ladder, plan)
-
-
-def _problem_figures(prepared) -> dict:
-    from benchsuite.qubit.metrics import qwc_groups
-
-    pauli = prepared.problem.hamiltonian.pauli
-    groups = qwc_groups(pauli)
-    return {"n_qubits": prepared.problem.n_qubits, "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
-            "one_norm_ha": float(pauli.one_norm()), "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
 
 
 def _benchmark_stats(item) -> dict | None:

@@ -185,6 +185,9 @@ def dmrg_rung(ints: MOIntegrals, multiplicity: int, label: str,
     without block2, ``failed`` (no energy) when block2 raises or the state's <S^2> or <N> is off."""
     if dmrg_module.block2_version() is None:
         return Rung("dmrg", None, None, label, 0.0, "skipped", dmrg_module.INSTALL_HINT)
+    if ints.n_orbitals > dmrg_module.MAX_ORBITALS:
+        return Rung("dmrg", None, None, label, 0.0, "skipped",
+                    f"{ints.n_orbitals} active orbitals exceed the DMRG rung's limit of {dmrg_module.MAX_ORBITALS}")
     t0 = time.perf_counter()
     try:
         rec = dmrg_module.run_dmrg(ints, multiplicity, settings)
@@ -323,8 +326,7 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
               and r.method != "hf"]
     if exact.status == "skipped":
         flags.append(f"{primary} skipped: {exact.note}")
-    if any(r.method == "dmrg" and r.status == "skipped" for r in rungs):
-        flags.append(f"dmrg skipped: {dmrg_module.INSTALL_HINT}")
+    flags += [f"dmrg skipped: {r.note}" for r in rungs if r.method == "dmrg" and r.status == "skipped"]
     return {"scf": scf_summary.to_dict(), "rungs": [asdict(r) for r in rungs], "flags": flags,
             "reference_energy_check_ha": ints.reference_energy_ha() - e_hf}
 

@@ -28,6 +28,7 @@ import numpy as np
 from benchsuite.chem.integrals import MOIntegrals
 from benchsuite.errors import InputError
 from benchsuite.qubit.hamiltonian import QubitHamiltonian
+from benchsuite.qubit.register import Register
 
 
 @dataclass(frozen=True)
@@ -99,6 +100,10 @@ class SectorState:
     basis_states: np.ndarray
     amplitudes: np.ndarray
     n_qubits: int
+
+    def __post_init__(self):
+        # Basis states are single uint64 words: refuse a wider register with its reason.
+        Register(self.n_qubits).require_single_word("a SectorState")
 
     def dense(self) -> np.ndarray:
         """The full 2^n statevector (for small registers and diagnostics only)."""

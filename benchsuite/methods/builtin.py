@@ -14,7 +14,7 @@ from dataclasses import replace
 import numpy as np
 
 from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources, SectorState
-from benchsuite.qubit.measurement import ShotPlan, estimate_energy
+from benchsuite.qubit.measurement import ShotPlan, check_measurable, estimate_energy
 from benchsuite.qubit.sector import DEFAULT_MAX_QUBITS, sector_eigen
 
 
@@ -31,11 +31,15 @@ class HartreeFockBitstring:
         ham = problem.hamiltonian
         state = ham.hf_state()
         energy = float(ham.basis_state_energy(state))
-        psi = SectorState(np.array([state], dtype=np.uint64), np.array([1.0]), ham.n_qubits)
+        metadata = {"bitstring": ham.hf_bitstring()}
+        if ham.pauli.wide:  # a SectorState holds one-word basis states; the energy needs none
+            psi, metadata["state"] = None, "not returned: the register is wider than 64 qubits"
+        else:
+            psi = SectorState(np.array([state], dtype=np.uint64), np.array([1.0]), ham.n_qubits)
         return MethodResult(energy_ha=energy, converged=True, iterations=0, parameters=[],
                             resources=Resources(n_parameters=0, two_qubit_gates=0, circuit_depth=0,
                                                 compilation="X gates only"),
-                            metadata={"bitstring": ham.hf_bitstring()}, state=psi)
+                            metadata=metadata, state=psi)
 
 
 class ExactSector:
@@ -86,6 +90,7 @@ def measured(result: MethodResult, problem: QubitProblem, plan: ShotPlan) -> Met
     ``resources.shots`` say how the estimate was made, so the gate judges it as stochastic.
     Raises ValueError when the method returned no state.
     """
+    check_measurable(problem.n_qubits)  # before the dense 2^n vector is made
     if not isinstance(result.state, SectorState):
         raise ValueError("the method returned no state to measure (--shots needs a state)")
     est = estimate_energy(problem.hamiltonian.pauli.real(), result.state.dense(), problem.n_qubits, plan,

@@ -48,13 +48,11 @@ class ProblemExport:
 
 def problem_figures(prepared) -> dict:
     """``n_qubits``, ``n_terms`` (non-identity strings), ``one_norm_ha`` and ``qwc_groups`` of the
-    problem's Pauli sum, as the runner records them for a task."""
-    from benchsuite.qubit.metrics import qwc_groups
+    problem's Pauli sum, as the runner records them for a task
+    (:func:`benchsuite.qubit.metrics.register_figures`)."""
+    from benchsuite.qubit.metrics import register_figures
 
-    pauli = prepared.problem.hamiltonian.pauli
-    groups = qwc_groups(pauli)
-    return {"n_qubits": prepared.problem.n_qubits, "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
-            "one_norm_ha": float(pauli.one_norm()), "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
+    return {**register_figures(prepared.problem.hamiltonian.pauli), "n_qubits": prepared.problem.n_qubits}
 
 
 def _identity(prepared, fp: ProblemFingerprint) -> dict:

@@ -75,7 +75,7 @@ from itertools import combinations
 
 import numpy as np
 
-from benchsuite.errors import InputError
+from benchsuite.errors import InputError, Refused
 from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources
 from benchsuite.methods.determinant import (
     ALPHA,
@@ -457,7 +457,25 @@ class _Setup:
     notes: list = field(default_factory=list)
 
 
+#: The UCC methods hold state vectors over the whole (N, S_z) determinant space; larger spaces are
+#: refused before any string is made (the same bound as the reference ladder's exact rung).
+MAX_STATE_DETERMINANTS = 5_000_000
+
+
+def check_state_size(problem: QubitProblem) -> None:
+    """Refuse (:class:`~benchsuite.errors.Refused`) a problem whose register is wider than one mask
+    word or whose determinant space exceeds :data:`MAX_STATE_DETERMINANTS`."""
+    problem.hamiltonian.pauli.register.require_single_word("the UCC state-vector kernel")
+    ints = problem.integrals
+    n_det = math.comb(ints.n_orbitals, ints.n_alpha) * math.comb(ints.n_orbitals, ints.n_beta)
+    if n_det > MAX_STATE_DETERMINANTS:
+        raise Refused(f"the UCC state-vector kernel refused: {n_det:,} determinants exceed its limit of "
+                      f"{MAX_STATE_DETERMINANTS:,} (benchsuite.methods.ucc.MAX_STATE_DETERMINANTS)",
+                      field="n_determinants")
+
+
 def _setup(problem: QubitProblem) -> _Setup:
+    check_state_size(problem)
     ints = problem.integrals
     started = time.perf_counter()
     space = DeterminantSpace(ints.n_orbitals, ints.n_alpha, ints.n_beta)

@@ -33,6 +33,7 @@ import numpy as np
 
 from benchsuite.qubit.metrics import qwc_groups
 from benchsuite.qubit.pauli import parity
+from benchsuite.qubit.register import Register
 
 ALLOCATIONS = ("uniform", "proportional")
 #: Widest register the stage measures (the state is held densely: 2^n amplitudes).
@@ -146,10 +147,15 @@ def group_variance(sample: np.ndarray, bound_ha: float) -> float:
     return float(sample.var(ddof=1)) if sample.size > 1 else bound_ha ** 2
 
 
+def check_measurable(n_qubits: int) -> None:
+    """Refuse (:class:`~benchsuite.qubit.register.RegisterTooWide`) registers past :data:`MAX_MEASURED_QUBITS`:
+    the stage rotates a dense 2^n state vector per group."""
+    Register(n_qubits).require(MAX_MEASURED_QUBITS, "the measurement stage", "it rotates a dense 2^n state")
+
+
 def estimate_energy(pauli, psi: np.ndarray, n_qubits: int, plan: ShotPlan, rng) -> ShotEstimate:
     """Sampled <psi|H|psi> with its standard error (module conventions); ``rng`` a numpy Generator."""
-    if n_qubits > MAX_MEASURED_QUBITS:
-        raise ValueError(f"{n_qubits} qubits exceed the measurement stage's limit of {MAX_MEASURED_QUBITS}")
+    check_measurable(n_qubits)
     constant, groups = measurement_groups(pauli, psi, n_qubits)
     sigmas = np.array([g.sigma_ha for g in groups])
     per_group = allocate_shots(plan.shots, sigmas, plan.allocation) if groups else np.zeros(0, np.int64)

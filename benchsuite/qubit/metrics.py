@@ -41,7 +41,7 @@ import numpy as np
 
 from benchsuite.constants import CHEMICAL_ACCURACY_MHA
 from benchsuite.qubit.hamiltonian import QubitHamiltonian
-from benchsuite.qubit.pauli import PauliSum, i_power, parity, popcount
+from benchsuite.qubit.pauli import PauliSum, i_power, is_zero, parity, popcount, qubitwise_commute
 
 #: Default target standard error: chemical accuracy, 1 kcal/mol in hartree.
 DEFAULT_EPSILON_HA = CHEMICAL_ACCURACY_MHA / 1000.0
@@ -49,39 +49,72 @@ DEFAULT_EPSILON_HA = CHEMICAL_ACCURACY_MHA / 1000.0
 GROUPING_METHOD = "greedy first-fit QWC colouring, strings by |c| descending"
 
 
+#: The greedy colouring costs O(strings x groups); above this many non-identity strings it is not
+#: attempted (``qwc_groups`` is then None, with the reason in ``grouping_method``).  Measured on one
+#: core (2026-12): H2O/cc-pVDZ JW, 1.29 x 10^5 strings, 6.4 s; NH3/cc-pVDZ JW, 5.23 x 10^5 strings,
+#: 148 s (cost ~ strings^2.3), so the limit costs about 20 s and the 120-qubit N2/cc-pVTZ case
+#: (2.05 x 10^6 strings, about an hour by that law) is reported ungrouped.
+MAX_GROUPING_STRINGS = 200_000
+
+
 def qwc_groups(pauli: PauliSum) -> np.ndarray:
     """Group index of each term of ``pauli`` (the identity gets -1), by the
-    greedy colouring described in the module docstring."""
+    greedy colouring described in the module docstring.  Any register width:
+    a group's signature has the masks' layout ((G,) or (G, n_words))."""
     n = len(pauli)
+    wide = pauli.wide
     group = np.full(n, -1, dtype=np.int64)
-    is_id = (pauli.x == 0) & (pauli.z == 0)
     order = np.argsort(-np.abs(pauli.coeffs), kind="stable")
-    order = order[~is_id[order]]
+    order = order[~pauli.identity_terms()[order]]
     # A group's signature: the letter on each qubit where any member acts.
-    sig_x = np.zeros(0, dtype=np.uint64)
-    sig_z = np.zeros(0, dtype=np.uint64)
+    sig_x = np.zeros((0,) + pauli.x.shape[1:], dtype=np.uint64)
+    sig_z = np.zeros_like(sig_x)
     count = 0
     for t in order:
         x, z = pauli.x[t], pauli.z[t]
-        if count:
-            overlap = (sig_x[:count] | sig_z[:count]) & (x | z)
-            clash = ((sig_x[:count] ^ x) | (sig_z[:count] ^ z)) & overlap
-            hit = np.flatnonzero(clash == 0)
-        else:
-            hit = np.zeros(0, dtype=np.int64)
-        if hit.size:
+        hit = np.flatnonzero(qubitwise_commute(sig_x[:count], sig_z[:count], x, z, wide)) if count else ()
+        if len(hit):
             g = int(hit[0])
             sig_x[g] |= x
             sig_z[g] |= z
         else:
-            if count == sig_x.size:
-                sig_x = np.concatenate([sig_x, np.zeros(max(16, count), dtype=np.uint64)])
-                sig_z = np.concatenate([sig_z, np.zeros(max(16, count), dtype=np.uint64)])
+            if count == sig_x.shape[0]:
+                grow = np.zeros((max(16, count),) + sig_x.shape[1:], dtype=np.uint64)
+                sig_x, sig_z = np.concatenate([sig_x, grow]), np.concatenate([sig_z, grow])
             g = count
             sig_x[g], sig_z[g] = x, z
             count += 1
         group[t] = g
     return group
+
+
+def groups_within_limit(pauli: PauliSum, max_strings: int | None = None) -> np.ndarray | None:
+    """:func:`qwc_groups`, or None when ``pauli`` has more than ``max_strings`` non-identity strings
+    (default: the module's :data:`MAX_GROUPING_STRINGS`, read at call time)."""
+    limit = MAX_GROUPING_STRINGS if max_strings is None else max_strings
+    return qwc_groups(pauli) if pauli.n_strings() <= limit else None
+
+
+def n_groups_of(groups: np.ndarray | None) -> int | None:
+    """Number of QWC groups in a :func:`qwc_groups` array (None stays None)."""
+    if groups is None:
+        return None
+    return int(groups.max()) + 1 if groups.size and groups.max() >= 0 else 0
+
+
+def grouping_method(pauli: PauliSum, groups: np.ndarray | None) -> str:
+    """:data:`GROUPING_METHOD`, or why no grouping was computed."""
+    if groups is not None:
+        return GROUPING_METHOD
+    return (f"not computed: {pauli.n_strings()} strings exceed the greedy colouring's limit of "
+            f"{MAX_GROUPING_STRINGS} (benchsuite.qubit.metrics.MAX_GROUPING_STRINGS)")
+
+
+def register_figures(pauli: PauliSum) -> dict:
+    """``n_qubits``, ``n_terms`` (non-identity strings), ``one_norm_ha`` (Eh) and ``qwc_groups`` (None
+    past :data:`MAX_GROUPING_STRINGS`) of a task's Pauli sum, as the runner records them."""
+    return {"n_qubits": pauli.n_qubits, "n_terms": pauli.n_strings(), "one_norm_ha": float(pauli.one_norm()),
+            "qwc_groups": n_groups_of(groups_within_limit(pauli))}
 
 
 #: Dense state vectors are accepted on registers up to this size (2^n amplitudes,
@@ -113,23 +146,27 @@ def apply_pauli(pauli: PauliSum, psi: np.ndarray) -> np.ndarray:
     return out
 
 
-def _basis_state_variances(pauli: PauliSum, groups: np.ndarray, state: int):
+def _basis_state_variances(pauli: PauliSum, groups: np.ndarray | None, state: int):
     """sigma_j and Var(H_g) on a basis state: <P_j> = +-1 for X-free strings, 0 otherwise;
     within a QWC group only strings with equal X masks have nonzero covariance, so
-    Var(H_g) = sum over X masks x != 0 in g of (sum_j c_j (-1)^{|z_j & b|})^2."""
-    b = np.uint64(state)
-    signs = (1 - 2 * parity(pauli.z & b)).astype(float)
-    expect = np.where(pauli.x == 0, signs, 0.0)
+    Var(H_g) = sum over X masks x != 0 in g of (sum_j c_j (-1)^{|z_j & b|})^2.
+    ``groups`` None: sigma only (var is None).  Any register width."""
+    wide = pauli.wide
+    b = pauli.register.masks([int(state)])[0]
+    signs = (1 - 2 * parity(pauli.z & b, wide)).astype(float)
+    x_free = is_zero(pauli.x, wide)
+    expect = np.where(x_free, signs, 0.0)
     sigma = np.sqrt(np.clip(1.0 - expect ** 2, 0.0, None))
-    mask = (groups >= 0) & (pauli.x != 0)
-    n_groups = int(groups.max()) + 1 if groups.size and groups.max() >= 0 else 0
-    var = np.zeros(n_groups)
+    if groups is None:
+        return sigma, None
+    mask = (groups >= 0) & ~x_free
+    var = np.zeros(n_groups_of(groups))
     if np.any(mask):
         c = np.real(pauli.coeffs[mask]) * signs[mask]
-        key_g, key_x = groups[mask], pauli.x[mask]
-        order = np.lexsort((key_x, key_g))
+        key_g, key_x = groups[mask], pauli.x[mask].reshape(int(mask.sum()), -1)
+        order = np.lexsort((*(key_x[:, w] for w in reversed(range(key_x.shape[1]))), key_g))
         kg, kx, cs = key_g[order], key_x[order], c[order]
-        start = np.concatenate([[True], (kg[1:] != kg[:-1]) | (kx[1:] != kx[:-1])])
+        start = np.concatenate([[True], (kg[1:] != kg[:-1]) | np.any(kx[1:] != kx[:-1], axis=1)])
         idx = np.flatnonzero(start)
         sums = np.add.reduceat(cs, idx)
         np.add.at(var, kg[idx], sums ** 2)
@@ -165,10 +202,13 @@ def _dense_state_variances(pauli: PauliSum, groups: np.ndarray, psi: np.ndarray)
 
 @dataclass(frozen=True)
 class ShotEstimate:
+    """Shots for standard error ``epsilon_ha`` (Eh); ``with_grouping`` is None where no QWC grouping
+    was computed (more strings than :data:`MAX_GROUPING_STRINGS`)."""
+
     epsilon_ha: float
     state: str
     no_grouping: float
-    with_grouping: float
+    with_grouping: float | None
     upper_bound: float
     formula: str = ("M = (sum_j |c_j| sigma_j)^2 / eps^2 (no grouping); "
                     "M = (sum_g sqrt(Var H_g))^2 / eps^2 (QWC groups); bound lambda^2 / eps^2 "
@@ -179,24 +219,32 @@ class ShotEstimate:
         return asdict(self)
 
 
+_UNSET = object()
+
+
 def shot_estimate(pauli: PauliSum, state: int | np.ndarray, epsilon_ha: float = DEFAULT_EPSILON_HA,
-                  groups: np.ndarray | None = None, state_label: str | None = None) -> ShotEstimate:
-    """Shots to reach standard error ``epsilon_ha`` on ``state`` (basis-state integer or dense vector)."""
+                  groups=_UNSET, state_label: str | None = None) -> ShotEstimate:
+    """Shots to reach standard error ``epsilon_ha`` on ``state`` (basis-state integer or dense vector).
+
+    ``groups``: a :func:`qwc_groups` array, None for no grouped figure, or (default) computed here
+    within :data:`MAX_GROUPING_STRINGS`."""
     if epsilon_ha <= 0:
         raise ValueError("epsilon must be positive")
     if not pauli.is_hermitian():
         raise ValueError("shot estimates need a Hermitian Pauli sum")
     pauli = pauli.real()
-    groups = qwc_groups(pauli) if groups is None else groups
+    groups = groups_within_limit(pauli) if groups is _UNSET else groups
     if isinstance(state, (int, np.integer)):
         sigma, var = _basis_state_variances(pauli, groups, int(state))
         label = state_label or f"basis state {int(state)}"
     else:
+        if groups is None:
+            raise ValueError("dense-state shot estimates need QWC groups")
         sigma, var = _dense_state_variances(pauli, groups, np.asarray(state))
         label = state_label or "given state vector"
-    non_id = (pauli.x != 0) | (pauli.z != 0)
+    non_id = ~pauli.identity_terms()
     no_group = float(np.sum(np.abs(pauli.coeffs[non_id]) * sigma[non_id]) ** 2 / epsilon_ha ** 2)
-    with_group = float(np.sum(np.sqrt(var)) ** 2 / epsilon_ha ** 2)
+    with_group = None if var is None else float(np.sum(np.sqrt(var)) ** 2 / epsilon_ha ** 2)
     bound = float(pauli.one_norm() ** 2 / epsilon_ha ** 2)
     return ShotEstimate(epsilon_ha, label, no_group, with_group, bound)
 
@@ -205,10 +253,11 @@ def resource_metrics(ham: QubitHamiltonian, epsilon_ha: float = DEFAULT_EPSILON_
                      state: int | np.ndarray | None = None, state_label: str | None = None) -> dict:
     """Metrics of ``ham`` as a JSON-ready dict (definitions in the module docstring).
 
-    Shots are evaluated on ``state`` (default: the Hartree-Fock basis state).
+    Shots are evaluated on ``state`` (default: the Hartree-Fock basis state).  Any register width;
+    past :data:`MAX_GROUPING_STRINGS` strings ``qwc_groups`` and the grouped shot count are None.
     """
     pauli = ham.pauli
-    groups = qwc_groups(pauli)
+    groups = groups_within_limit(pauli)
     if state is None:
         state, state_label = ham.hf_state(), "hartree-fock"
     shots = shot_estimate(pauli, state, epsilon_ha, groups, state_label)
@@ -217,12 +266,12 @@ def resource_metrics(ham: QubitHamiltonian, epsilon_ha: float = DEFAULT_EPSILON_
         "n_qubits_before_reductions": ham.n_modes,
         "n_qubits": ham.n_qubits,
         "qubits_removed": removed,
-        "n_terms": int(np.count_nonzero((pauli.x != 0) | (pauli.z != 0))),
+        "n_terms": pauli.n_strings(),
         "one_norm_ha": pauli.one_norm(),
         "one_norm_definition": "sum of |c| over Pauli strings, identity excluded",
         "drop_tolerance_ha": ham.tolerance,
         "dropped_one_norm_ha": ham.dropped_one_norm_ha,
-        "qwc_groups": int(groups.max()) + 1 if len(pauli) and groups.max() >= 0 else 0,
-        "grouping_method": GROUPING_METHOD,
+        "qwc_groups": n_groups_of(groups),
+        "grouping_method": grouping_method(pauli, groups),
         "shots": shots.as_dict(),
     }

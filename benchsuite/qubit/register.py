@@ -36,7 +36,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from benchsuite.errors import InputError
+from benchsuite.errors import InputError, Refused
 
 #: Qubits in one mask word (uint64).
 WORD_QUBITS = 64
@@ -46,7 +46,7 @@ WORD_QUBITS = 64
 MAX_REGISTER_QUBITS = 4096
 
 
-class RegisterTooWide(InputError):
+class RegisterTooWide(Refused):
     """A register wider than the code asked to hold it can take; ``str()`` is the reason."""
 
 

@@ -38,7 +38,7 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse
 
-from benchsuite.errors import InputError
+from benchsuite.errors import InputError, Refused
 from benchsuite.qubit import gf2
 from benchsuite.qubit.encodings import encoding_matrix, mode_indices
 from benchsuite.qubit.hamiltonian import QubitHamiltonian
@@ -197,10 +197,10 @@ def _half_matrix(rows, cols, vals, dim: int, dtype) -> scipy.sparse.csr_matrix:
 
 
 def check_qubit_limit(n_qubits: int, max_qubits: int | None) -> None:
-    """InputError if exact diagonalisation of an ``n_qubits`` register is beyond the limit."""
+    """Refused (an InputError) if exact diagonalisation of an ``n_qubits`` register is beyond the limit."""
     limit = DEFAULT_MAX_QUBITS if max_qubits is None else max_qubits
     if n_qubits > limit:
-        raise InputError(f"exact diagonalisation refused: {n_qubits} qubits exceed the limit of {limit} "
+        raise Refused(f"exact diagonalisation refused: {n_qubits} qubits exceed the limit of {limit} "
                          f"(raise it with --max-exact-qubits)", field="--max-exact-qubits")
 
 

@@ -65,29 +65,39 @@ def _pack(bits: np.ndarray) -> np.ndarray:
 
 
 def _bits(masks: np.ndarray, n: int) -> np.ndarray:
-    return ((masks[:, None] >> np.arange(n, dtype=np.uint64)[None, :]) & np.uint64(1)).astype(bool)
+    """Masks in a register's layout ((k,) narrow or (k, n_words) wide) -> booleans (k, n), column q = qubit q."""
+    words = masks.reshape(masks.shape[0], -1)
+    q = np.arange(n)
+    return ((words[:, q >> 6] >> (q & 63).astype(np.uint64)) & np.uint64(1)).astype(bool)
+
+
+def _row_int(row: np.ndarray) -> int:
+    """A packed GF(2) row (word w = bits 64 w .. 64 w + 63) as a Python integer."""
+    return sum(int(word) << (64 * w) for w, word in enumerate(row))
 
 
 def find_symmetries(pauli: PauliSum) -> Symmetries:
     """Null-space analysis of ``pauli`` (the identity term is ignored)."""
     op = pauli.without_identity()
     n = op.n_qubits
-    pairs = np.unique(np.stack([op.x, op.z], axis=1), axis=0) if len(op) else np.zeros((0, 2), np.uint64)
-    full_rows = _pack(np.concatenate([_bits(pairs[:, 0], n), _bits(pairs[:, 1], n)], axis=1))
+    k = len(op)
+    x_words, z_words = op.x.reshape(k, -1), op.z.reshape(k, -1)
+    pairs = np.unique(np.concatenate([x_words, z_words], axis=1), axis=0)
+    w = x_words.shape[1]
+    full_rows = _pack(np.concatenate([_bits(pairs[:, :w], n), _bits(pairs[:, w:], n)], axis=1))
     n_all = gf2.null_space(full_rows, 2 * n).shape[0] if n else 0
-    x_rows = _pack(_bits(np.unique(op.x), n))
+    x_rows = _pack(_bits(np.unique(x_words, axis=0), n))
     z_null = gf2.null_space(x_rows, n)
     if z_null.shape[0] == 0:
         return Symmetries(n_all, (), ())
     basis, pivots = gf2.rref(z_null, n)
-    gens = tuple(int(row[0]) for row in basis)
+    gens = tuple(_row_int(row) for row in basis)
     return Symmetries(n_all, gens, tuple(pivots))
 
 
 def reference_eigenvalues(generators, state: int) -> tuple[int, ...]:
-    """Eigenvalue (+1/-1) of each Z-string generator on a basis state."""
-    g = np.array(generators, dtype=np.uint64)
-    return tuple(int(v) for v in 1 - 2 * parity(g & np.uint64(state)))
+    """Eigenvalue (+1/-1) of each Z-string generator (Python int masks, any width) on a basis state."""
+    return tuple(1 - 2 * (bin(int(g) & int(state)).count("1") & 1) for g in generators)
 
 
 def taper(ham: QubitHamiltonian, eigenvalues: tuple[int, ...] | str = "hf",

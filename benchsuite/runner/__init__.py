@@ -36,6 +36,7 @@ import time
 import traceback
 from dataclasses import asdict, dataclass, field, fields as dataclass_fields
 
+from benchsuite.errors import Refused
 from benchsuite.methods.base import MethodResult, QubitProblem, resolve_options
 from benchsuite.runner import contract
 from benchsuite.runner.contract import Breach, bounded_text, short_repr
@@ -156,6 +157,8 @@ def exception_fields(exc: BaseException) -> dict:
         text = bounded_text(str(exc), 8192)
     except Exception:
         text = "(its text could not be formed)"
+    if isinstance(exc, Refused):
+        return {"status": "error", "message": text}
     note = ""
     if isinstance(exc, MemoryError):
         note = "\n" + _memory_limit_note()
@@ -277,18 +280,13 @@ class MethodJob:
     def run(self) -> dict:
         from benchsuite.chem.cache import DiskCache
         from benchsuite.methods.problem import build_problem
-        from benchsuite.qubit.metrics import qwc_groups
+        from benchsuite.methods.export import problem_figures
 
         t = self.task
         prepared = build_problem(t.case, t.basis, t.encoding, cache=DiskCache(self.cache_dir), seed=self.seed,
                                  time_budget_s=self.timeout_s, max_determinants=self.max_determinants)
         fields = _run_here(self.method, prepared.problem, resolve_options(self.method, t.options), t.shots)
-        pauli = prepared.problem.hamiltonian.pauli
-        groups = qwc_groups(pauli)
-        fields["problem"] = {"n_qubits": prepared.problem.n_qubits,
-                             "n_terms": int(((pauli.x != 0) | (pauli.z != 0)).sum()),
-                             "one_norm_ha": float(pauli.one_norm()),
-                             "qwc_groups": int(groups.max()) + 1 if groups.size else 0}
+        fields["problem"] = problem_figures(prepared)
         return fields
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pytest
 
 from benchsuite.qubit.hamiltonian import encode_integrals
@@ -110,3 +111,40 @@ def test_bad_input_exits_2_before_any_work(label, run_cli, tmp_path, monkeypatch
     assert message in err
     assert f"field '{fieldname}'" in err
     assert not (tmp_path / "c").exists()
+
+
+@pytest.mark.slow
+def test_hamiltonian_on_the_120_qubit_case(run_cli, registry):
+    """``benchsuite hamiltonian n2-tz-wide``: N2/cc-pVTZ all-electron, 120 qubits (two mask words).
+
+    Independent routes: PySCF's RHF energy, run here (not through benchsuite's cache), against
+    ``hf_energy_ha``; <HF|H|HF> re-summed from the JSON term list (diagonal strings only, sign
+    (-1)^(number of occupied qubits under Z)); the 1-norm and the shot bound re-derived from the
+    same list (bound = lambda^2 / eps^2: Wecker, Hastings & Troyer, PRA 92, 042303 (2015))."""
+    from pyscf import gto, scf
+
+    from benchsuite.constants import CHEMICAL_ACCURACY_MHA
+
+    doc = _json(run_cli, "n2-tz-wide")
+    assert doc["n_qubits"] == 120 and doc["n_electrons"] == 14
+    terms, metrics = doc["terms"], doc["metrics"]
+    assert metrics["n_terms"] == len(terms)
+    coeffs = np.array([t["coeff"] for t in terms])
+    assert metrics["one_norm_ha"] == pytest.approx(np.abs(coeffs).sum(), rel=1e-12)
+    eps = CHEMICAL_ACCURACY_MHA / 1000.0
+    assert metrics["shots"]["upper_bound"] == pytest.approx(metrics["one_norm_ha"] ** 2 / eps ** 2, rel=1e-12)
+    assert metrics["qwc_groups"] is None and "not computed" in metrics["grouping_method"]
+    qubits = {int(op[1:]) for t in terms for op in t["pauli"].split()}
+    assert max(qubits) == 119 and any(q >= 64 for q in qubits)
+
+    occupied = {q for q, bit in enumerate(doc["hf_bitstring"]) if bit == "1"}
+    diagonal = doc["constant_ha"]
+    for t in terms:
+        ops = t["pauli"].split()
+        if all(op[0] == "Z" for op in ops):
+            diagonal += t["coeff"] * (-1) ** sum(int(op[1:]) in occupied for op in ops)
+    case = registry.case("n2-tz-wide")
+    mol = gto.M(atom=list(zip(case.symbols, case.coords)), basis="cc-pvtz", unit=case.units, verbose=0)
+    e_rhf = scf.RHF(mol).run(conv_tol=1e-10).e_tot
+    assert doc["hf_energy_ha"] == pytest.approx(e_rhf, abs=1e-7)
+    assert diagonal == pytest.approx(e_rhf, abs=1e-7)

@@ -66,3 +66,105 @@ def test_register_bounds_and_refusal():
         Register(-1)
     with pytest.raises(RegisterTooWide, match="120 qubits"):
         Register(120).require_single_word("exact-sector")
+
+
+# -- metrics on wide registers ------------------------------------------------------------------
+# Independent route: the same Hamiltonian with every qubit q moved to q + SHIFT on a 128-qubit
+# register (strings straddle the word boundary at qubit 64).  Its metrics must equal the narrow
+# register's, and its QWC groups are checked from the label text alone, not from masks.
+
+SHIFT = 57
+
+
+def _shifted(pauli: PauliSum, n_qubits: int = 128) -> PauliSum:
+    terms = [(" ".join(f"{t[0]}{int(t[1:]) + SHIFT}" for t in label.split()), c) for label, c in pauli]
+    return PauliSum.from_terms(terms, n_qubits)
+
+
+def _letters(label: str) -> dict:
+    return {int(t[1:]): t[0] for t in label.split()}
+
+
+def test_wide_metrics_equal_the_narrow_register(case_ints):
+    """H2O/STO-3G under Jordan-Wigner (14 qubits) shifted across qubit 64: term count, 1-norm, QWC
+    group count and every shot figure on the HF state agree (1e-9 relative)."""
+    from benchsuite.qubit.hamiltonian import encode_integrals
+    from benchsuite.qubit.metrics import qwc_groups, shot_estimate
+
+    ints, _, _ = case_ints("h2o")
+    narrow = encode_integrals(ints).pauli
+    wide = _shifted(narrow)
+    assert wide.wide and wide.n_strings() == narrow.n_strings()
+    assert wide.one_norm() == pytest.approx(narrow.one_norm(), rel=1e-12)
+    g_narrow, g_wide = qwc_groups(narrow), qwc_groups(wide)
+    assert g_wide.max() == g_narrow.max()
+    hf_narrow = (1 << ints.n_electrons) - 1
+    a = shot_estimate(narrow, hf_narrow, groups=g_narrow)
+    b = shot_estimate(wide, hf_narrow << SHIFT, groups=g_wide)
+    for field in ("no_grouping", "with_grouping", "upper_bound"):
+        assert getattr(b, field) == pytest.approx(getattr(a, field), rel=1e-9), field
+
+
+def test_wide_qwc_groups_checked_from_labels(case_ints):
+    """Every wide group is qubit-wise commuting by its labels' letters, and every non-identity
+    string is in exactly one group."""
+    from benchsuite.qubit.hamiltonian import encode_integrals
+    from benchsuite.qubit.metrics import qwc_groups
+
+    ints, _, _ = case_ints("h2o")
+    wide = _shifted(encode_integrals(ints).pauli)
+    groups = qwc_groups(wide)
+    labels = wide.labels()
+    assert all((g == -1) == (label == "") for g, label in zip(groups, labels))
+    for g in range(int(groups.max()) + 1):
+        seen: dict = {}
+        for j in np.flatnonzero(groups == g):
+            for q, letter in _letters(labels[j]).items():
+                assert seen.setdefault(q, letter) == letter, (g, labels[j])
+
+
+def test_grouping_limit_is_reported_not_silent(case_ints, monkeypatch):
+    """Past MAX_GROUPING_STRINGS the record says so: no group count, no grouped shots, the
+    ungrouped figures kept."""
+    from benchsuite.qubit import metrics
+    from benchsuite.qubit.hamiltonian import encode_integrals
+
+    ints, _, _ = case_ints("h2o")
+    ham = encode_integrals(ints)
+    full = metrics.resource_metrics(ham)
+    monkeypatch.setattr(metrics, "MAX_GROUPING_STRINGS", ham.pauli.n_strings() - 1)
+    capped = metrics.resource_metrics(ham)
+    assert capped["qwc_groups"] is None and capped["shots"]["with_grouping"] is None
+    assert "not computed" in capped["grouping_method"] and str(ham.pauli.n_strings()) in capped["grouping_method"]
+    assert capped["shots"]["no_grouping"] == full["shots"]["no_grouping"]
+    assert capped["n_terms"] == full["n_terms"] and capped["one_norm_ha"] == full["one_norm_ha"]
+
+
+def test_wide_tapering_matches_narrow_spectrum(case_ints):
+    """Z2 tapering on the shifted 128-qubit H2O/STO-3G JW register.  Each of the 114 idle qubits
+    adds one Z-type symmetry (Z_q) and two Pauli symmetries (X_q, Z_q); the molecule's own four
+    remain.  Tapered in the Hartree-Fock sector, both registers leave 10 qubits and the same
+    spectrum (dense diagonalisation of OpenFermion's sparse matrices as the independent route)."""
+    import openfermion as of
+
+    from benchsuite.qubit.hamiltonian import Z2_TAPERING, Reduction, encode_integrals
+    from benchsuite.qubit.tapering import find_symmetries, reference_eigenvalues
+
+    ints, _, _ = case_ints("h2o")
+    ham = encode_integrals(ints)
+    narrow, wide = ham.pauli, _shifted(ham.pauli)
+    sym_n, sym_w = find_symmetries(narrow), find_symmetries(wide)
+    idle = wide.n_qubits - narrow.n_qubits
+    assert sym_w.n_z_symmetries == sym_n.n_z_symmetries + idle
+    assert sym_w.n_pauli_symmetries == sym_n.n_pauli_symmetries + 2 * idle
+    hf = ham.hf_state()
+    spectra = []
+    for pauli, sym, state in ((narrow, sym_n, hf), (wide, sym_w, hf << SHIFT)):
+        red = Reduction(kind=Z2_TAPERING, n_qubits_before=pauli.n_qubits, generators=sym.z_generators,
+                        qubits=sym.pivots, eigenvalues=reference_eigenvalues(sym.z_generators, state),
+                        clifford=True)
+        tapered = red.apply(pauli)
+        assert tapered.n_qubits == narrow.n_qubits - sym_n.n_z_symmetries
+        matrix = of.get_sparse_operator(tapered.to_openfermion(), tapered.n_qubits).toarray()
+        spectra.append(np.linalg.eigvalsh(matrix))
+    np.testing.assert_allclose(spectra[1], spectra[0], atol=1e-9)
