@@ -108,3 +108,18 @@ def test_dmrg_rung_is_cached(registry, tmp_path):
     again = reference_ladder(registry.case("lih"), cache=cache, max_determinants=0)
     assert (first.cache_status, again.cache_status) == ("miss", "hit")
     assert again.primary == first.primary and again.primary.method == "dmrg"
+
+
+def test_rung_past_its_orbital_limit_is_skipped_before_block2(monkeypatch):
+    """41 active orbitals: skipped with the limit named; block2 is never called."""
+    from benchsuite.chem.integrals import MOIntegrals
+    from benchsuite.chem.ladder import dmrg_rung
+
+    n = dmrg_module.MAX_ORBITALS + 1
+    ints = MOIntegrals(h1_ha=np.eye(n), eri_ha=np.zeros((n,) * 4), constant_ha=0.0, nuclear_repulsion_ha=0.0,
+                       core_energy_ha=0.0, n_alpha=1, n_beta=1, n_core=0, mo_energy_ha=np.ones(n))
+    monkeypatch.setattr(dmrg_module, "block2_version", lambda: "test")
+    monkeypatch.setattr(dmrg_module, "run_dmrg", lambda *a, **k: pytest.fail("block2 was called"))
+    rung = dmrg_rung(ints, 1, "test space")
+    assert rung.status == "skipped" and rung.energy_ha is None
+    assert f"{n} active orbitals exceed the DMRG rung's limit of {dmrg_module.MAX_ORBITALS}" in rung.note
