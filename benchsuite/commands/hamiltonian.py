@@ -107,8 +107,9 @@ def run_hamiltonian(args) -> int:
     return 0
 
 
-def _grouped(shots: float | None) -> str:
-    return "-" if shots is None else f"{shots:.4g}"
+def _or_dash(value, spec: str = "") -> str:
+    """``value`` formatted with ``spec``, or "-" where it was not computed (None)."""
+    return "-" if value is None else format(value, spec)
 
 
 def render_text(doc: dict, n_terms: int) -> str:
@@ -123,9 +124,9 @@ def render_text(doc: dict, n_terms: int) -> str:
         f"HF bitstring (qubit 0 first) {doc['hf_bitstring']}  energy {doc['hf_energy_ha']:.10f} Eh; "
         f"SCF ({doc['scf_method']}) {doc['scf_energy_ha']:.10f} Eh",
         f"Pauli terms {m['n_terms']}, 1-norm {m['one_norm_ha']:.6f} Eh ({m['one_norm_definition']})",
-        f"QWC groups {'-' if m['qwc_groups'] is None else m['qwc_groups']} ({m['grouping_method']})",
+        f"QWC groups {_or_dash(m['qwc_groups'])} ({m['grouping_method']})",
         f"shots for eps = {1000 * shots['epsilon_ha']:.4f} mHa on the {shots['state']} state: "
-        f"{shots['no_grouping']:.4g} ungrouped, {_grouped(shots['with_grouping'])} grouped, "
+        f"{shots['no_grouping']:.4g} ungrouped, {_or_dash(shots['with_grouping'], '.4g')} grouped, "
         f"bound {shots['upper_bound']:.4g}",
         f"build {doc['build_seconds']:.3f} s (encoding only), reductions {doc['reduction_seconds']:.3f} s",
     ]

@@ -15,6 +15,7 @@ import numpy as np
 
 from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources, SectorState
 from benchsuite.qubit.measurement import ShotPlan, check_measurable, estimate_energy
+from benchsuite.qubit.register import RegisterTooWide
 from benchsuite.qubit.sector import DEFAULT_MAX_QUBITS, sector_eigen
 
 
@@ -32,10 +33,10 @@ class HartreeFockBitstring:
         state = ham.hf_state()
         energy = float(ham.basis_state_energy(state))
         metadata = {"bitstring": ham.hf_bitstring()}
-        if ham.pauli.wide:  # a SectorState holds one-word basis states; the energy needs none
-            psi, metadata["state"] = None, "not returned: the register is wider than 64 qubits"
-        else:
+        try:
             psi = SectorState(np.array([state], dtype=np.uint64), np.array([1.0]), ham.n_qubits)
+        except RegisterTooWide as exc:  # the energy needs no state; a SectorState holds one-word states
+            psi, metadata["state"] = None, f"not returned: {exc}"
         return MethodResult(energy_ha=energy, converged=True, iterations=0, parameters=[],
                             resources=Resources(n_parameters=0, two_qubit_gates=0, circuit_depth=0,
                                                 compilation="X gates only"),

@@ -52,7 +52,7 @@ def problem_figures(prepared) -> dict:
     (:func:`benchsuite.qubit.metrics.register_figures`)."""
     from benchsuite.qubit.metrics import register_figures
 
-    return {**register_figures(prepared.problem.hamiltonian.pauli), "n_qubits": prepared.problem.n_qubits}
+    return register_figures(prepared.problem.hamiltonian.pauli)
 
 
 def _identity(prepared, fp: ProblemFingerprint) -> dict:

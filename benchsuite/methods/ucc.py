@@ -75,6 +75,7 @@ from itertools import combinations
 
 import numpy as np
 
+from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
 from benchsuite.errors import InputError, Refused
 from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources
 from benchsuite.methods.determinant import (
@@ -458,8 +459,8 @@ class _Setup:
 
 
 #: The UCC methods hold state vectors over the whole (N, S_z) determinant space; larger spaces are
-#: refused before any string is made (the same bound as the reference ladder's exact rung).
-MAX_STATE_DETERMINANTS = 5_000_000
+#: refused before any string is made (the reference ladder's default bound for its exact rung).
+MAX_STATE_DETERMINANTS = DEFAULT_MAX_DETERMINANTS
 
 
 def check_state_size(problem: QubitProblem) -> None:

@@ -88,11 +88,10 @@ def qwc_groups(pauli: PauliSum) -> np.ndarray:
     return group
 
 
-def groups_within_limit(pauli: PauliSum, max_strings: int | None = None) -> np.ndarray | None:
-    """:func:`qwc_groups`, or None when ``pauli`` has more than ``max_strings`` non-identity strings
-    (default: the module's :data:`MAX_GROUPING_STRINGS`, read at call time)."""
-    limit = MAX_GROUPING_STRINGS if max_strings is None else max_strings
-    return qwc_groups(pauli) if pauli.n_strings() <= limit else None
+def groups_within_limit(pauli: PauliSum) -> np.ndarray | None:
+    """:func:`qwc_groups`, or None when ``pauli`` has more than :data:`MAX_GROUPING_STRINGS`
+    non-identity strings (the module global, read at call time)."""
+    return qwc_groups(pauli) if pauli.n_strings() <= MAX_GROUPING_STRINGS else None
 
 
 def n_groups_of(groups: np.ndarray | None) -> int | None:

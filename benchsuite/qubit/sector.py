@@ -201,7 +201,7 @@ def check_qubit_limit(n_qubits: int, max_qubits: int | None) -> None:
     limit = DEFAULT_MAX_QUBITS if max_qubits is None else max_qubits
     if n_qubits > limit:
         raise Refused(f"exact diagonalisation refused: {n_qubits} qubits exceed the limit of {limit} "
-                         f"(raise it with --max-exact-qubits)", field="--max-exact-qubits")
+                      f"(raise it with --max-exact-qubits)", field="--max-exact-qubits")
 
 
 def _orthonormal_additions(v: np.ndarray, new: np.ndarray, floor: float = 1e-8) -> np.ndarray:

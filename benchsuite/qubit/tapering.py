@@ -35,6 +35,7 @@ from benchsuite.errors import InputError
 from benchsuite.qubit import gf2
 from benchsuite.qubit.hamiltonian import Z2_TAPERING, QubitHamiltonian, Reduction
 from benchsuite.qubit.pauli import PauliSum, parity
+from benchsuite.qubit.register import words_to_ints
 
 
 #: Sectors whose lowest energies differ by less than this (hartree) count as tied.
@@ -71,11 +72,6 @@ def _bits(masks: np.ndarray, n: int) -> np.ndarray:
     return ((words[:, q >> 6] >> (q & 63).astype(np.uint64)) & np.uint64(1)).astype(bool)
 
 
-def _row_int(row: np.ndarray) -> int:
-    """A packed GF(2) row (word w = bits 64 w .. 64 w + 63) as a Python integer."""
-    return sum(int(word) << (64 * w) for w, word in enumerate(row))
-
-
 def find_symmetries(pauli: PauliSum) -> Symmetries:
     """Null-space analysis of ``pauli`` (the identity term is ignored)."""
     op = pauli.without_identity()
@@ -91,13 +87,13 @@ def find_symmetries(pauli: PauliSum) -> Symmetries:
     if z_null.shape[0] == 0:
         return Symmetries(n_all, (), ())
     basis, pivots = gf2.rref(z_null, n)
-    gens = tuple(_row_int(row) for row in basis)
+    gens = tuple(words_to_ints(basis))  # packed GF(2) rows share the masks' word layout
     return Symmetries(n_all, gens, tuple(pivots))
 
 
 def reference_eigenvalues(generators, state: int) -> tuple[int, ...]:
     """Eigenvalue (+1/-1) of each Z-string generator (Python int masks, any width) on a basis state."""
-    return tuple(1 - 2 * (bin(int(g) & int(state)).count("1") & 1) for g in generators)
+    return tuple(1 - 2 * ((int(g) & int(state)).bit_count() & 1) for g in generators)
 
 
 def taper(ham: QubitHamiltonian, eigenvalues: tuple[int, ...] | str = "hf",
