@@ -86,7 +86,8 @@ def run_tasks(store, run_id: str, plan: RunPlan, tasks, ex: Execution, progress=
     cfg = GridConfig(workers=ex.workers, scheduler=ex.scheduler, timeout_s=s.timeout_s,
                      reference_timeout_s=s.reference_timeout_s, cache_dir=ex.cache_dir, seed=plan.seed,
                      max_determinants=s.max_determinants,
-                     max_memory_mb=s.max_memory_mb if s.max_memory_mb is not None else DEFAULT_MAX_MEMORY_MB)
+                     max_memory_mb=s.max_memory_mb if s.max_memory_mb is not None else DEFAULT_MAX_MEMORY_MB,
+                     history_s=store.measured_seconds([t.key for t in tasks], exclude_run=run_id))
 
     def on_result(task, fields, ladder):
         row = task_row(run_id, task, fields, ladder, plan)

@@ -250,3 +250,32 @@ class Method(Protocol):
     stochastic: bool
 
     def run(self, problem: QubitProblem, options: dict[str, Any]) -> MethodResult: ...
+
+
+# -- signs of life -------------------------------------------------------------------------
+
+#: Callables hearing :func:`report_progress`'s record (a dict); none by default.  A run's worker
+#: process appends one that forwards the record, throttled, to the parent's progress display.
+PROGRESS_LISTENERS: list = []
+
+#: The fields a progress display shows; others are passed on to listeners but not displayed.
+PROGRESS_FIELDS = ("iteration", "energy_ha", "gradient_norm", "stage")
+
+
+def report_progress(iteration: int | None = None, energy_ha: float | None = None,
+                    gradient_norm: float | None = None, stage: str | None = None) -> None:
+    """Tell the run how a long method is getting on; cheap enough to call every iteration.
+
+    ``iteration``: the method's own count (ADAPT: operators added; an optimiser: its iterations);
+    ``energy_ha``: the current energy in hartree; ``gradient_norm``: the norm the method stops on
+    (Eh per unit parameter); ``stage``: a few words (``"re-optimising"``).  Any may be left out.
+    Outside a run (no listener) this does nothing; a listener that fails is dropped, never
+    raised into the method.
+    """
+    record = {k: v for k, v in (("iteration", iteration), ("energy_ha", energy_ha),
+                                ("gradient_norm", gradient_norm), ("stage", stage)) if v is not None}
+    for listener in list(PROGRESS_LISTENERS):
+        try:
+            listener(record)
+        except Exception:
+            PROGRESS_LISTENERS.remove(listener)

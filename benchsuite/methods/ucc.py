@@ -77,7 +77,7 @@ import numpy as np
 
 from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
 from benchsuite.errors import InputError, Refused
-from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources
+from benchsuite.methods.base import MethodResult, Option, QubitProblem, Resources, report_progress
 from benchsuite.methods.determinant import (
     ALPHA,
     BETA,
@@ -203,19 +203,6 @@ def staircase_cost(excitations, hamiltonian) -> tuple[int, int, str]:
     label = (f"{COMPILATION}: exp(-i t P) of weight w as 2(w-1) CNOTs, depth 2(w-1), exponentials in "
              f"sequence, no cancellation; {hamiltonian.encoding}/{hamiltonian.ordering}{where}")
     return cnots, cnots, label
-
-
-# -- signs of life -------------------------------------------------------------------------
-
-#: Callables hearing ``report_progress(**fields)`` from a long method (ADAPT: iteration, energy_ha,
-#: gradient_norm); a worker may append one that forwards the fields to the parent's display.
-PROGRESS_LISTENERS: list = []
-
-
-def report_progress(**fields) -> None:
-    """Pass one progress record to every listener (none by default: a no-op)."""
-    for listener in PROGRESS_LISTENERS:
-        listener(fields)
 
 
 # -- optimisation ------------------------------------------------------------------------

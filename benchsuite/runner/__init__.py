@@ -28,6 +28,7 @@ result is ``below-exact`` or ``wrong-state`` is decided in the parent by
 
 from __future__ import annotations
 
+import math
 import multiprocessing as mp
 import os
 import pickle
@@ -37,9 +38,10 @@ import traceback
 from dataclasses import asdict, dataclass, field, fields as dataclass_fields
 
 from benchsuite.errors import Refused
-from benchsuite.methods.base import MethodResult, QubitProblem, resolve_options
+from benchsuite.methods.base import PROGRESS_LISTENERS, MethodResult, QubitProblem, resolve_options
 from benchsuite.runner import contract
 from benchsuite.runner.contract import Breach, bounded_text, short_repr
+from benchsuite.runner.cost import CostModel, TaskClock, TaskSize, longest_first
 from benchsuite.runner.isolation import (DEFAULT_MAX_MEMORY_MB, DEFAULT_TIMEOUT_S, Capture, InterruptGuard,
                                          Isolation, RunInterrupted, budget, end_worker, enter_isolation,
                                          flush_c_output, kill_group, shutdown_forkserver)
@@ -356,9 +358,33 @@ def _contained_work(payload: bytes, iso: Isolation, capture_fd: int | None) -> b
     return contract.encode_fields(fields)
 
 
+#: A worker forwards at most one progress record per this many seconds (the latest one).
+PROGRESS_INTERVAL_S = 1.0
+
+
+class _ProgressSender:
+    """A progress listener in a worker: sends the method's records to the parent, throttled."""
+
+    def __init__(self, conn):
+        self.conn, self.last = conn, -math.inf
+
+    def __call__(self, record: dict) -> None:
+        now = time.monotonic()
+        if now - self.last >= PROGRESS_INTERVAL_S:
+            self.last = now
+            self.conn.send_bytes(contract.encode_progress(record))
+
+
 def _pool_child(payload: bytes, iso: Isolation, conn, capture_fd: int) -> None:
-    conn.send_bytes(_contained_work(payload, iso, capture_fd))
+    PROGRESS_LISTENERS.append(_ProgressSender(conn))
+    answer = _contained_work(payload, iso, capture_fd)
+    PROGRESS_LISTENERS.clear()
+    conn.send_bytes(answer)
     conn.close()
+
+
+#: :meth:`LocalPool._receive`'s answer for a progress record: the job goes on.
+_STILL_RUNNING = object()
 
 
 @dataclass
@@ -380,11 +406,12 @@ class LocalPool:
     run raises :class:`RunInterrupted`; :meth:`close` kills what still runs.
     """
 
-    def __init__(self, workers: int, guard: InterruptGuard | None = None):
+    def __init__(self, workers: int, guard: InterruptGuard | None = None, watcher=None):
         self.workers = max(1, int(workers))
         self.ctx = _context()
         self.guard = guard or InterruptGuard()
         self.running: dict = {}
+        self.watcher = watcher       # hears job_started(job), job_progress(job, record), tick()
 
     def run(self, jobs: list[Job]):
         """Yield a :class:`JobDone` for each job as it finishes (in completion order)."""
@@ -396,11 +423,19 @@ class LocalPool:
             while pending and len(self.running) < self.workers:
                 self._start(pending.pop(0))
             for conn in wait(list(self.running), timeout=0.2):
-                yield self._finish(conn, self._receive(conn))
+                fields = self._receive(conn)
+                if fields is not _STILL_RUNNING:
+                    yield self._finish(conn, fields)
             now = time.perf_counter()
             for conn, w in list(self.running.items()):
                 if w.job.timeout_s is not None and now - w.started > w.job.timeout_s:
                     yield self._finish(conn, timeout_fields(now - w.started, w.job.timeout_s))
+            self._tell("tick")
+
+    def _tell(self, event: str, *args) -> None:
+        hear = getattr(self.watcher, event, None)
+        if hear is not None:
+            hear(*args)
 
     def _start(self, job: Job) -> None:
         capture = Capture()
@@ -411,6 +446,7 @@ class LocalPool:
         proc.start()
         sender.close()
         self.running[receiver] = _Running(job, proc, time.perf_counter(), capture)
+        self._tell("job_started", job)
 
     def _receive(self, conn) -> dict | None:
         job = self.running[conn].job
@@ -420,6 +456,9 @@ class LocalPool:
             return None
         except OSError as exc:
             return {"status": "error", "message": f"worker result refused: {exc}"}
+        if contract.is_progress(data):
+            self._tell("job_progress", job, contract.decode_progress(data))
+            return _STILL_RUNNING
         return contract.decode_fields(data, job.needs_energy)
 
     def _finish(self, conn, fields: dict | None):
@@ -485,13 +524,15 @@ class DaskPool:
         self.client = Client(address, timeout="20s")
         self.guard = guard or InterruptGuard()
         self.futures: dict = {}
+        self.watcher = None          # hears tick() only: a Dask job's start and progress are not seen here
 
     def run(self, jobs: list[Job]):
         from dask.distributed import TimeoutError as DaskTimeout
         from dask.distributed import wait
 
         futures = {self.client.submit(_subprocess_work, j.payload, j.timeout_s, j.max_memory_mb, j.needs_energy,
-                                      pure=False): j for j in jobs}
+                                      pure=False, priority=len(jobs) - i): j     # in the given order
+                   for i, j in enumerate(jobs)}
         self.futures = futures
         pending = set(futures)
         while pending:
@@ -502,6 +543,8 @@ class DaskPool:
                 continue
             for fut in done:
                 yield JobDone(futures[fut], self._result(fut, futures[fut]))
+            if self.watcher is not None:
+                self.watcher.tick()
 
     @staticmethod
     def _result(fut, job: Job) -> dict:
@@ -527,7 +570,9 @@ class GridConfig:
     :data:`DEFAULT_TIMEOUT_S`, ``math.inf``: none); ``max_memory_mb`` each
     method worker's address-space limit in MiB (``None``:
     :data:`DEFAULT_MAX_MEMORY_MB`, ``math.inf``: none).  Reference ladders get
-    ``reference_timeout_s`` (``None``: none) and no memory limit.
+    ``reference_timeout_s`` (``None``: none) and no memory limit.  ``history_s`` (task key ->
+    seconds measured by an earlier run) feeds the cost model that orders method jobs
+    longest-first (:mod:`benchsuite.runner.cost`).
     """
 
     workers: int = 1
@@ -538,6 +583,7 @@ class GridConfig:
     seed: int = 0
     max_determinants: int = 5_000_000
     max_memory_mb: float | None = DEFAULT_MAX_MEMORY_MB
+    history_s: dict | None = None      # task key -> seconds an earlier stored run measured (cost model)
 
 
 def _make_pool(cfg: GridConfig, guard: InterruptGuard):
@@ -619,11 +665,53 @@ def _method_jobs(tasks, methods, cfg: GridConfig, ladders, failed, on_result) ->
     return jobs
 
 
+def task_size(task: Task, ladders: dict) -> TaskSize:
+    """The size of ``task``'s problem from its reference ladder's orbital space."""
+    space = ladders[_pair(task.case, task.basis)].space
+    return TaskSize.of_space(space.n_orbitals, space.n_alpha, space.n_beta)
+
+
+def _scheduled(jobs: list[Job], ladders: dict, cfg: GridConfig, progress) -> list[Job]:
+    """Method jobs longest-first by the cost model; ``progress`` hears the plan (``method_phase``)."""
+    clock = TaskClock(CostModel(cfg.history_s), cfg.workers)
+    sized = {id(j): (j.work.task.key, _method_name(j.work), task_size(j.work.task, ladders)) for j in jobs}
+    ordered = longest_first(jobs, lambda j: clock.model.predict_s(*sized[id(j)]))
+    clock.plan([sized[id(j)] for j in ordered])
+    if progress is not None and hasattr(progress, "method_phase"):
+        progress.method_phase(clock)
+    return ordered
+
+
+def _method_name(job: "MethodJob") -> str:
+    return getattr(job.method, "name", None) or job.task.method
+
+
 def _run_grid(tasks, methods, cfg, on_result, progress, pool) -> None:
     ladders, failed = _run_ladders(tasks, cfg, progress, pool)
-    for done in pool.run(_method_jobs(tasks, methods, cfg, ladders, failed, on_result)):
+    jobs = _scheduled(_method_jobs(tasks, methods, cfg, ladders, failed, on_result), ladders, cfg, progress)
+    pool.watcher = _TaskWatcher(progress)
+    for done in pool.run(jobs):
         task = done.job.work.task
         on_result(task, done.fields, ladders[_pair(task.case, task.basis)])
+
+
+class _TaskWatcher:
+    """Passes a pool's start and progress events of method jobs to the run's progress display."""
+
+    def __init__(self, progress):
+        self.progress = progress
+
+    def job_started(self, job: Job) -> None:
+        if isinstance(job.work, MethodJob) and hasattr(self.progress, "task_started"):
+            self.progress.task_started(job.work.task)
+
+    def job_progress(self, job: Job, record: dict) -> None:
+        if isinstance(job.work, MethodJob) and hasattr(self.progress, "task_progress"):
+            self.progress.task_progress(job.work.task, record)
+
+    def tick(self) -> None:
+        if hasattr(self.progress, "tick"):
+            self.progress.tick()
 
 
 def _stdin_main() -> None:

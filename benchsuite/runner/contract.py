@@ -304,3 +304,50 @@ def checked_fields(raw, needs_energy: bool) -> dict:
         return {"status": "invalid", "seconds": out.get("seconds", 0.0),
                 "message": f"worker result rejected: {exc}"}
     return out
+
+
+# -- progress records (worker -> parent while a method runs) -------------------------------
+
+#: First byte of a progress record on a worker's pipe; a final answer is JSON and starts with ``{``.
+PROGRESS_TAG = b"~"
+MAX_PROGRESS_BYTES = 1024
+MAX_STAGE_CHARS = 60
+
+
+def encode_progress(record: dict) -> bytes:
+    """A :func:`benchsuite.methods.base.report_progress` record for the pipe (checked, bounded)."""
+    return PROGRESS_TAG + json.dumps(checked_progress(record)).encode()
+
+
+def is_progress(data: bytes) -> bool:
+    return data[:1] == PROGRESS_TAG
+
+
+def checked_progress(raw) -> dict:
+    """The displayable part of a progress record; anything out of range or mistyped is dropped
+    (a progress record is advice, never an error)."""
+    if not isinstance(raw, dict):
+        return {}
+    out = {}
+    it = raw.get("iteration")
+    if isinstance(it, numbers.Integral) and not isinstance(it, bool) and 0 <= it <= MAX_ITERATIONS:
+        out["iteration"] = int(it)
+    for key, bound in (("energy_ha", MAX_ABS_ENERGY_HA), ("gradient_norm", MAX_RESOURCE_VALUE)):
+        value = raw.get(key)
+        if isinstance(value, numbers.Real) and not isinstance(value, bool) and math.isfinite(value) \
+                and abs(value) <= bound and (key != "gradient_norm" or value >= 0):
+            out[key] = float(value)
+    stage = raw.get("stage")
+    if isinstance(stage, str) and stage.isprintable():
+        out["stage"] = stage[:MAX_STAGE_CHARS]
+    return out
+
+
+def decode_progress(data: bytes) -> dict:
+    """Parse a progress record received by the parent; malformed or oversize -> ``{}``."""
+    if len(data) > MAX_PROGRESS_BYTES + len(PROGRESS_TAG):
+        return {}
+    try:
+        return checked_progress(json.loads(data[len(PROGRESS_TAG):]))
+    except (ValueError, UnicodeDecodeError, RecursionError):
+        return {}

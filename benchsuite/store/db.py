@@ -680,6 +680,22 @@ class ResultStore:
     def stored_task_keys(self, run_id: str) -> set[str]:
         return {r[0] for r in self._conn.execute("SELECT task_key FROM results WHERE run_id = ?", (run_id,))}
 
+    @_guarded
+    def measured_seconds(self, task_keys, exclude_run: str | None = None) -> dict[str, float]:
+        """``task key -> seconds`` of the latest completed row of each key in any stored run (a
+        timeout, error or invalid result measured no cost and is left out); the cost model's history."""
+        keys = list(dict.fromkeys(task_keys))
+        out: dict[str, float] = {}
+        for i in range(0, len(keys), 500):
+            chunk = keys[i:i + 500]
+            marks = ",".join("?" * len(chunk))
+            for key, seconds in self._conn.execute(
+                    f"SELECT task_key, seconds FROM results WHERE task_key IN ({marks}) AND run_id IS NOT ? "
+                    "AND status IN ('ok', 'below-exact', 'wrong-state') ORDER BY finished_at",
+                    (*chunk, exclude_run)):
+                out[key] = float(seconds)
+        return out
+
     def missing_tasks(self, run_id: str, task_keys) -> list[str]:
         """The keys of ``task_keys`` with no stored row in the run, in the given order, once each."""
         stored = self.stored_task_keys(run_id)

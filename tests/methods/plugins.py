@@ -387,3 +387,38 @@ class CheckedOptions(_Base):
 
     def run(self, problem, options):
         return MethodResult(energy_ha=_hf_energy(problem))
+
+
+class ReportsProgress(_Base):
+    """A slow solver of the fictional lab that reports each iteration, then returns the HF energy."""
+
+    name = "lab-reports-progress"
+    options = (Option("seconds", float, 3.0, "how long to run"),)
+
+    def run(self, problem, options):
+        from benchsuite.methods.base import report_progress
+
+        e = _hf_energy(problem)
+        t0, it = time.perf_counter(), 0
+        while time.perf_counter() - t0 < options["seconds"]:
+            it += 1
+            report_progress(iteration=it, energy_ha=e + 1.0 / it, gradient_norm=0.5 / it, stage="sweeping")
+            time.sleep(0.1)
+        return MethodResult(energy_ha=e, iterations=it, converged=True)
+
+
+class ReportsHostileProgress(_Base):
+    """Reports progress records that break every field's range; the display must drop those fields."""
+
+    name = "lab-hostile-progress"
+
+    def run(self, problem, options):
+        from benchsuite.methods import base
+
+        t0 = time.perf_counter()
+        while time.perf_counter() - t0 < 3.0:
+            base.report_progress(iteration=-4, energy_ha=math.nan, gradient_norm=-1.0, stage="x" * 5000)
+            for listener in base.PROGRESS_LISTENERS:      # bypass the keyword interface
+                listener({"iteration": True, "energy_ha": "-1.0", "stage": "bell\a"})
+            time.sleep(0.1)
+        return MethodResult(energy_ha=_hf_energy(problem), iterations=1)

@@ -1,0 +1,88 @@
+"""Signs of life: a running task's progress records reach the run's display; the method tasks run
+longest first; the display says how long the method phase took against its first prediction."""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from benchsuite.report import progress as progress_module
+
+PLUGINS = "tests.methods.plugins"
+
+
+@pytest.fixture
+def fast_log(monkeypatch):
+    monkeypatch.setattr(progress_module, "LOG_EVERY_S", 0.5)
+
+
+def test_live_records_reach_the_plain_log(run_cli, tmp_path, fast_log):
+    code, out, err = run_cli("run", "--case", "h2", "--method", f"{PLUGINS}:ReportsProgress",
+                             "--db", str(tmp_path / "r.sqlite"), "--threshold-mha", "50")
+    assert code == 0, err
+    running = [line for line in err.splitlines() if line.strip().startswith("running h2")]
+    assert running, err
+    # the plugin reports iteration k with E = E_HF + 1/k and |g| = 0.5/k, throttled to one record a second
+    last = running[-1]
+    found = re.search(r"sweeping, iteration (\d+), E (-?\d+\.\d+) Eh, \|g\| (\d\.\de-\d\d)", last)
+    assert found, last
+    k = int(found.group(1))
+    assert k >= 2 and float(found.group(3)) == pytest.approx(0.5 / k, rel=0.05)
+    assert re.search(r"method tasks took \d+:\d\d \(predicted \d+:\d\d\)", err)
+
+
+def test_hostile_records_are_dropped_field_by_field(run_cli, tmp_path, fast_log):
+    code, out, err = run_cli("run", "--case", "h2", "--method", f"{PLUGINS}:ReportsHostileProgress",
+                             "--db", str(tmp_path / "r.sqlite"), "--threshold-mha", "50")
+    assert code == 0, err
+    running = [line for line in err.splitlines() if line.strip().startswith("running h2")]
+    assert running, err
+    for line in running:
+        assert "nan" not in line and "iteration" not in line and "|g|" not in line and "\a" not in line
+        assert "x" * 61 not in line                        # the stage is cut to 60 characters
+
+
+class _Recorder:
+    """A progress display that records the order tasks start in and the plan's predictions."""
+
+    def __init__(self, n_tasks):
+        self.started, self.clock = [], None
+
+    def method_phase(self, clock):
+        self.clock = clock
+        self.predicted = {k: clock.predicted_s(k) for k in clock.pending}
+
+    def task_started(self, task):
+        self.started.append(task.key)
+
+    def reference_done(self, *a):
+        pass
+
+    def row_done(self, row):
+        pass
+
+    def close(self):
+        pass
+
+
+def test_method_tasks_start_longest_first(registry, tmp_path):
+    from benchsuite.gate.request import RunRequest, start_run
+    from benchsuite.gate.execute import Outputs
+    from benchsuite.gate.plan import RunSettings
+
+    rec = {}
+
+    def factory(n):
+        rec["p"] = _Recorder(n)
+        return rec["p"]
+
+    req = RunRequest(suite=None, cases=["h2", "lih", "heh-cation"], methods=["hf-bitstring", "uccsd-vqe"],
+                     option_items=[], settings=RunSettings(), seed=0, resume=None, workers=1, scheduler=None,
+                     db=str(tmp_path / "r.sqlite"), cache_dir=str(tmp_path / "cache"), baseline=None,
+                     max_increase_mha=None, allow_new=False, outputs=Outputs(), command="test")
+    start_run(req, factory)
+    p = rec["p"]
+    costs = [p.predicted[k] for k in p.started]
+    assert len(p.started) == 6 and costs == sorted(costs, reverse=True)
+    assert p.started[0].startswith("lih/") and "uccsd-vqe" in p.started[0]      # the biggest sector first
