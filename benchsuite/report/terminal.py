@@ -28,17 +28,26 @@ REGRESSION_KINDS = ("pass->not-pass", "error-grew", "new-error")
 
 
 def fixed_table(headers: list[str], rows: list[list], aligns: str | None = None) -> str:
-    """Plain fixed-width table; ``aligns`` one of 'l'/'r' per column (default left)."""
-    cells = [[("" if c is None else str(c)) for c in row] for row in rows]
-    widths = [max([len(h)] + [len(r[i]) for r in cells]) for i, h in enumerate(headers)]
+    """A plain fixed-width table (``rich``, no colour, no box): a header line, a rule of dashes, one
+    line per row; ``aligns`` one of 'l'/'r' per column (default left); ``None`` cells are blank.
+    Never wrapped or cut: a long cell widens its column."""
+    from io import StringIO
+
+    from rich import box
+    from rich.console import Console
+    from rich.table import Table
+
     aligns = aligns or "l" * len(headers)
-
-    def line(vals):
-        return "  ".join(v.rjust(w) if a == "r" else v.ljust(w)
-                         for v, w, a in zip(vals, widths, aligns)).rstrip()
-
-    rule = "  ".join("-" * w for w in widths)
-    return "\n".join([line(headers), rule] + [line(r) for r in cells])
+    table = Table(box=box.Box("    \n    \n -  \n    \n    \n    \n    \n    \n", ascii=True), show_edge=False,
+                  pad_edge=False, padding=(0, 1), collapse_padding=True, safe_box=True)
+    for h, a in zip(headers, aligns):
+        table.add_column(h, justify="right" if a == "r" else "left", no_wrap=True)
+    for row in rows:
+        table.add_row(*[("" if c is None else str(c)) for c in row])
+    out = StringIO()
+    Console(file=out, width=10_000, color_system=None, highlight=False, markup=False, emoji=False,
+            legacy_windows=False).print(table)
+    return "\n".join(line.rstrip() for line in out.getvalue().splitlines())
 
 
 def _num(x, spec: str = ".4f") -> str:
