@@ -14,7 +14,8 @@ def add_run(sub) -> None:
     p = sub.add_parser("run", help="the gate: every method on every selected case, judged and stored")
     sel = p.add_mutually_exclusive_group(required=True)
     sel.add_argument("--suite", help="a named suite")
-    sel.add_argument("--case", nargs="+", metavar="NAME", help="case names (a scan name means every point)")
+    sel.add_argument("--case", nargs="+", action="extend", metavar="NAME",
+                     help="case names (a scan name means every point); repeatable")
     sel.add_argument("--resume", metavar="RUN_ID", help="finish an interrupted run: only its missing tasks")
     add_case_sources(p)
     p.add_argument("--method", action="append", default=[], metavar="M", help="method (repeatable)")

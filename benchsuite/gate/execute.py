@@ -89,7 +89,12 @@ def run_tasks(store, run_id: str, plan: RunPlan, tasks, ex: Execution, progress=
                      max_memory_mb=s.max_memory_mb if s.max_memory_mb is not None else DEFAULT_MAX_MEMORY_MB,
                      history_s=store.measured_seconds([t.key for t in tasks], exclude_run=run_id))
 
+    stored_ladders: set = set()
+
     def on_result(task, fields, ladder):
+        if ladder is not None and (ladder.case, ladder.basis) not in stored_ladders:
+            store.add_reference(run_id, ladder.to_json())     # once per (case, basis); rows point to it
+            stored_ladders.add((ladder.case, ladder.basis))
         row = task_row(run_id, task, fields, ladder, plan)
         row.captured_output = fields.get("captured_output") or ""      # the worker's output, for the record
         store.add_result(row)

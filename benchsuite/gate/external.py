@@ -301,6 +301,10 @@ class Problems:
         self.cache = cache
         self._memo: dict = {}
 
+    def ladders(self) -> list:
+        """The reference ladder of every problem built so far."""
+        return [p.prepared.ladder for p in self._memo.values()]
+
     def get(self, case, basis, enc: Encoding) -> Problem:
         key = (case.name, basis.label, enc.label)
         if key not in self._memo:
@@ -597,6 +601,8 @@ def score_table(store, table: ResultsFile, checked: tuple, settings, problems: P
     final = judged_rows(run_id, rows, problems, plan)
     run = external_record(run_id, plan, rows, table, errors)
     store.begin_run(run)
+    for ladder in {(lad.case, lad.basis): lad for lad in problems.ladders()}.values():
+        store.add_reference(run_id, ladder.to_json())
     store.add_results(final)
     ex = Execution(baseline_id=baseline_id, max_increase_mha=max_increase_mha, allow_new=allow_new)
     decision = conclude(store, run, final, settings, ex, (rejected_reason(errors, table),) if errors else ())

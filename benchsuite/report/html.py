@@ -262,7 +262,7 @@ class ReportData:
 
 def collect_report(store, run_id: str, registry=None, title: str | None = None) -> ReportData:
     """Everything the report shows, from the stored run ``run_id`` (a full id)."""
-    return build_report(store.get_run(run_id), store.results(run_id), registry, title)
+    return build_report(store.get_run(run_id), store.results(run_id), registry, title, store.references(run_id))
 
 
 def _scored(row) -> float | None:
@@ -306,8 +306,10 @@ def _method_parts(run, rows, registry, anchors):
     return list(by_method), summaries, tables
 
 
-def build_report(run, rows, registry=None, title: str | None = None) -> ReportData:
-    """:class:`ReportData` from a :class:`RunRecord` and its :class:`ResultRow` list."""
+def build_report(run, rows, registry=None, title: str | None = None, references=()) -> ReportData:
+    """:class:`ReportData` from a :class:`RunRecord`, its :class:`ResultRow` list and its stored
+    reference ladders (:class:`~benchsuite.store.records.StoredReference`; a run stored before the
+    references table has none, and its ladders are read from the rows' copies)."""
     from benchsuite.report.terminal import within_label
 
     rows = sorted(rows, key=lambda r: (r.method, r.scan_parent or r.case, r.scan_length or 0.0, r.case,
@@ -323,7 +325,8 @@ def build_report(run, rows, registry=None, title: str | None = None) -> ReportDa
         threshold_source=run.threshold_source, summaries=summaries, tables=tables,
         matrix=build_matrix(rows, methods, anchors, gate, registry, VERDICTS),
         scans=_scans(rows, run.threshold_mha, registry),
-        ladders=(ladders := _ladders(rows)), ladder_rungs=_ladder_columns(ladders),
+        ladders=(ladders := _stored_ladders(references, rows) or _ladders(rows)),
+        ladder_rungs=_ladder_columns(ladders),
         resources=[_resource_row(r) for r in sorted(rows, key=worst_first)],
         provenance=_provenance(run, rows), bibliography=_bibliography(rows, registry),
         tags=sorted({t for r in rows for t in r.tags}), verdicts=list(counts),
@@ -454,6 +457,25 @@ def _ladders(rows) -> list[Ladder]:
                                  bool(p.get("from_memory")), _delta(p["energy_ha"], primary))
                        for p in (r.secondary or {}).get("published") or [] if p.get("energy_ha") is not None])
     return list(seen.values())
+
+
+def _stored_ladders(references, rows) -> list[Ladder]:
+    """The run's stored ladders (one per (case, basis) its rows point to), in scan order."""
+    order = {(r.case, r.basis): (r.scan_parent or r.case, r.scan_length or 0.0) for r in rows}
+    out = []
+    for ref in sorted((f for f in references if (f.case, f.basis) in order),
+                      key=lambda f: (*order[(f.case, f.basis)], f.case, f.basis)):
+        doc, primary, scf = ref.ladder, ref.primary_energy_ha, ref.ladder.get("scf") or {}
+        out.append(Ladder(
+            case=ref.case, basis=ref.basis, space=ref.space, scf_method=scf.get("method"),
+            scf_converged=scf.get("converged"), scf_stable=scf.get("stable"), scf_flags=list(scf.get("flags") or []),
+            primary=ref.primary_method, primary_energy_ha=primary,
+            rungs=[Rung(g["method"], g.get("energy_ha"), g.get("status", ""), _delta(g.get("energy_ha"), primary))
+                   for g in sorted(doc.get("ladder") or [], key=lambda g: _rung_sort_key(g["method"]))],
+            published=[Published(p.get("method", ""), p.get("basis", ref.basis), p["energy_ha"], p.get("source", ""),
+                                 bool(p.get("from_memory")), _delta(p["energy_ha"], primary))
+                       for p in doc.get("published") or [] if p.get("energy_ha") is not None]))
+    return out
 
 
 def _ladder_columns(ladders) -> list[str]:

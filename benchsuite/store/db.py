@@ -84,6 +84,7 @@ Duplicates
 from __future__ import annotations
 
 import functools
+import json
 import os
 import sqlite3
 import sys
@@ -96,8 +97,9 @@ from benchsuite.errors import InputError
 from benchsuite.scoring import STATUSES, VERDICTS
 from benchsuite.store import unsaved
 from benchsuite.store.chain import TamperedRunError, check_record, check_rows, genesis, record_hash, row_hash
-from benchsuite.store.records import (RESULT_COLUMNS, RUN_COLUMNS, ResultRow, RunRecord, bound_text, dumps,
-                                      from_db_values, storable_values, to_db_values, utc_now)
+from benchsuite.store.records import (REFERENCE_COLUMNS, RESULT_COLUMNS, RUN_COLUMNS, ResultRow, RunRecord,
+                                      StoredReference, bound_text, dumps, from_db_values, reference_record,
+                                      reference_sha256, storable_values, to_db_values, utc_now)
 
 __all__ = ["DEFAULT_BUSY_WAIT_S", "MIGRATIONS", "SCHEMA_VERSION", "ResultStore", "StoreBusyError",
            "TamperedRunError", "default_db_path", "migrate"]
@@ -187,8 +189,20 @@ def _v3_chain(conn: sqlite3.Connection) -> None:
         _reseal(conn, run_id)
 
 
+def _v4_references(conn: sqlite3.Connection) -> None:
+    """Each run's reference ladders, one row per (run, case, basis); result rows point to theirs."""
+    conn.execute(f"""CREATE TABLE reference_ladders (
+        run_id TEXT NOT NULL REFERENCES runs(run_id), "case" TEXT NOT NULL, basis TEXT NOT NULL,
+        primary_method TEXT, primary_energy_ha REAL, uncertainty_ha REAL, space TEXT NOT NULL,
+        {_json("ladder")}, sha256 TEXT NOT NULL, stored_at TEXT NOT NULL,
+        PRIMARY KEY (run_id, "case", basis))""")
+
+
+_REFERENCE_SQL = ", ".join(f'"{c}"' for c in REFERENCE_COLUMNS)
+
+
 #: Ordered: MIGRATIONS[i] takes the schema from version i to i + 1.  Append only.
-MIGRATIONS = (_v1_tables, _v2_indexes, _v3_chain)
+MIGRATIONS = (_v1_tables, _v2_indexes, _v3_chain, _v4_references)
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
@@ -679,6 +693,39 @@ class ResultStore:
     @_guarded
     def stored_task_keys(self, run_id: str) -> set[str]:
         return {r[0] for r in self._conn.execute("SELECT task_key FROM results WHERE run_id = ?", (run_id,))}
+
+    @_guarded
+    def add_reference(self, run_id: str, ladder: dict) -> None:
+        """Store the reference ladder document of one (case, basis) of the run, once: a pair already
+        stored for the run is kept (a resumed run reuses the ladder its first rows were judged on).
+
+        ``ladder`` is :meth:`benchsuite.chem.ladder.Ladder.to_json`'s document; its primary rung,
+        energy (Eh), uncertainty u (Eh; 0 for an exact rung) and space label are columns of their own.
+        """
+        record = reference_record(run_id, ladder)
+        values = tuple(dumps(record.ladder) if c == "ladder" else getattr(record, c) for c in REFERENCE_COLUMNS)
+
+        def write():
+            with _transaction(self._conn) as conn:
+                conn.execute(f"INSERT OR IGNORE INTO reference_ladders ({_REFERENCE_SQL}) "
+                             f"VALUES ({', '.join('?' * len(values))})", values)
+        self._retry(write)
+
+    @_guarded
+    def references(self, run_id: str) -> list[StoredReference]:
+        """The run's reference ladders by (case, basis), each checked against its SHA-256 (an edited
+        one is a :class:`TamperedRunError`); empty for a run stored before schema v4."""
+        rows = self._conn.execute(f"SELECT {_REFERENCE_SQL} FROM reference_ladders WHERE run_id = ? "
+                                  'ORDER BY "case", basis', (run_id,)).fetchall()
+        out = []
+        for values in rows:
+            record = StoredReference(**dict(zip(REFERENCE_COLUMNS, values)))
+            record.ladder = json.loads(record.ladder)
+            if record.sha256 != reference_sha256(run_id, record.ladder):
+                raise TamperedRunError(run_id, f"the reference ladder of {record.case} / {record.basis} does not "
+                                       "match its SHA-256", self.path)
+            out.append(record)
+        return out
 
     @_guarded
     def measured_seconds(self, task_keys, exclude_run: str | None = None) -> dict[str, float]:

@@ -327,3 +327,51 @@ def bound_text(text, limit: int, keep_end: bool = False) -> str:
     if keep_end:
         return f"[... {cut:,} earlier characters not kept]\n" + text[cut:]
     return text[:limit - 60] + f"\n[... {cut:,} more characters not kept]"
+
+
+# -- reference ladders --------------------------------------------------------------------
+
+#: Columns of the ``reference_ladders`` table, in order.
+REFERENCE_COLUMNS = ("run_id", "case", "basis", "primary_method", "primary_energy_ha", "uncertainty_ha", "space",
+                     "ladder", "sha256", "stored_at")
+
+
+@dataclass
+class StoredReference:
+    """A run's reference ladder for one (case, basis): the rows of that pair point to it.
+
+    ``ladder`` is the ladder document (``references --format json``: rungs with energies in Eh,
+    statuses, seconds and notes; SCF summary; orbital space; published values); ``primary_method``,
+    ``primary_energy_ha`` and ``uncertainty_ha`` (u, Eh; 0 for FCI/CASCI, None without a usable
+    primary) repeat its primary rung; ``sha256`` is :func:`reference_sha256` of the document.
+    """
+
+    run_id: str
+    case: str
+    basis: str
+    primary_method: str | None
+    primary_energy_ha: float | None
+    uncertainty_ha: float | None
+    space: str
+    ladder: dict
+    sha256: str
+    stored_at: str
+
+
+def reference_sha256(run_id: str, ladder: dict) -> str:
+    """SHA-256 of ``run_id`` and the ladder document's canonical JSON (sorted keys, no spaces)."""
+    return hashlib.sha256(dumps([run_id, ladder]).encode()).hexdigest()
+
+
+def reference_record(run_id: str, ladder: dict) -> StoredReference:
+    """The stored form of a ladder document (its primary rung read from the document)."""
+    rungs = {r.get("method"): r for r in ladder.get("ladder") or []}
+    primary = rungs.get(ladder.get("primary")) or {}
+    usable = primary.get("status") == "ok" and primary.get("energy_ha") is not None
+    return StoredReference(
+        run_id=run_id, case=str(ladder["case"]), basis=str(ladder["basis"]),
+        primary_method=primary.get("method") if usable else None,
+        primary_energy_ha=primary.get("energy_ha") if usable else None,
+        uncertainty_ha=(primary.get("uncertainty_ha") or 0.0) if usable else None,
+        space=str((ladder.get("space") or {}).get("label", "")), ladder=json_safe(ladder),
+        sha256=reference_sha256(run_id, ladder), stored_at=utc_now())

@@ -213,7 +213,8 @@ def test_v1_database_is_migrated_with_its_data(tmp_path):
     with sqlite3.connect(path) as conn:
         assert conn.execute(indexes).fetchall() == []
     with ResultStore.open(path) as new:
-        assert new.schema_version == SCHEMA_VERSION == 3
+        assert new.schema_version == SCHEMA_VERSION == 4
+        assert new.references(RUN) == []                # stored before the references table
         assert new.results(RUN) == sorted([sample_row(RUN, 5), sample_row(RUN, 2)], key=lambda r: r.task_key)
         assert new.get_run(RUN) == sample_run(RUN)
     with sqlite3.connect(path) as conn:
