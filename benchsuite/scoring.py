@@ -62,6 +62,16 @@ def is_failing(verdict: str, allow_inconclusive: bool = False) -> bool:
     return verdict in FAILING and not (allow_inconclusive and verdict == "inconclusive")
 
 
+#: Verdicts that, for a result its method reports as converged, mean "converged but failing": the
+#: method stopped on its own criterion (a small gradient, a stationary point) far from the reference.
+CONVERGED_FAILING = ("fail", "wrong-state")
+
+
+def converged_but_failing(verdict: str, converged: bool | None) -> bool:
+    """A result its method calls converged whose energy or state still fails: not a solver success."""
+    return converged is True and verdict in CONVERGED_FAILING
+
+
 def error_mha(energy_ha: float, reference_ha: float) -> float:
     """1000 * (E_method - E_reference)."""
     return 1000.0 * (energy_ha - reference_ha)

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-from benchsuite.scoring import PROCEDURE_NAMES, fail_level, is_failing
+from benchsuite.scoring import PROCEDURE_NAMES, converged_but_failing, fail_level, is_failing
 
 #: Order of "how bad" for verdicts without an error to rank by.
 _SEVERITY = ("below-exact", "wrong-state", "invalid", "error", "timeout", "fail", "unconverged", "inconclusive")
@@ -58,6 +58,7 @@ class GateDecision:
     stochastic: dict
     baseline: dict | None
     reasons: list[str] = field(default_factory=list)
+    converged_failing: list[TaskVerdict] = field(default_factory=list)   # scoring.converged_but_failing
 
     @property
     def passed(self) -> bool:
@@ -82,7 +83,8 @@ class GateDecision:
                    worst=task(doc["worst"]), unconverged=[task(d) for d in doc["unconverged"]],
                    allow_inconclusive=doc["allow_inconclusive"], require_converged=doc["require_converged"],
                    stochastic=dict(doc["stochastic"]), baseline=doc.get("baseline"),
-                   reasons=list(doc.get("reasons", [])))
+                   reasons=list(doc.get("reasons", [])),
+                   converged_failing=[task(d) for d in doc.get("converged_failing", [])])
 
 
 def _task(r) -> TaskVerdict:
@@ -118,6 +120,7 @@ def decide(run_id: str, rows: list, settings, comparison=None) -> GateDecision:
         run_id=run_id, n_tasks=len(tasks), n_scored=len(scored), counts=counts, failing=failing,
         worst=min(scored, key=badness) if scored else None,
         unconverged=[t for t in tasks if t.converged is False],
+        converged_failing=sorted((t for t in tasks if converged_but_failing(t.verdict, t.converged)), key=badness),
         allow_inconclusive=settings.allow_inconclusive, require_converged=settings.require_converged,
         stochastic=_stochastic_summary(rows, settings), baseline=baseline, reasons=reasons)
 

@@ -20,7 +20,7 @@ import xml.etree.ElementTree as ET
 from dataclasses import asdict
 
 from benchsuite.report.naming import task_label
-from benchsuite.scoring import FAILING, is_failing
+from benchsuite.scoring import FAILING, converged_but_failing, is_failing
 
 __all__ = ["FAILING", "is_failing", "task_document", "run_document", "failure_message", "junit_xml"]
 
@@ -35,7 +35,8 @@ def task_document(row) -> dict:
                           "uncertainty_ha": _reference(row).get("uncertainty_ha"),
                           "review": _reference(row).get("review", "")},
             "error_mha": row.error_mha, "status": row.status, "verdict": row.verdict,
-            "threshold_mha": row.threshold_mha, "converged": row.converged, "iterations": row.iterations,
+            "threshold_mha": row.threshold_mha, "converged": row.converged,
+            "converged_but_failing": converged_but_failing(row.verdict, row.converged), "iterations": row.iterations,
             "seconds": row.seconds, "resources": row.resources, "message": row.message,
             "secondary": row.secondary, "scf": row.scf, "tags": row.tags, "task_key": row.task_key,
             "state_check": (row.metadata or {}).get("state_check")}
@@ -65,7 +66,9 @@ def failure_message(row) -> str:
     return (f"{row.verdict}: E({row.method}) = {_fmt(row.energy_ha, '.10f')} Eh, "
             f"E({row.reference_method or 'reference'}) = {_fmt(row.reference_energy_ha, '.10f')} Eh{_u_text(row)}, "
             f"error = {_fmt(row.error_mha, '+.4f')} mHa (threshold {row.threshold_mha:.4f} mHa)"
-            + (f", sigma = {1000 * row.stderr_ha:.4f} mHa" if row.stderr_ha else ""))
+            + (f", sigma = {1000 * row.stderr_ha:.4f} mHa" if row.stderr_ha else "")
+            + ("; converged but failing: the method stopped on its own criterion"
+               if converged_but_failing(row.verdict, row.converged) else ""))
 
 
 def junit_xml(run, rows: list, gate: dict) -> bytes:

@@ -21,6 +21,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from benchsuite.report.naming import basis_label, encoding_label, encoding_parts, molecule_of, task_label
+from benchsuite.scoring import converged_but_failing
 
 #: Bin edges of the accuracy scale in units of the threshold (|error| / threshold).
 SCALE_EDGES = (0.1, 1.0, 3.0, 10.0, 30.0, 100.0)
@@ -68,6 +69,7 @@ class MatrixCell:
     ratio: float | None          # |error| / threshold
     scale: str
     not_converged: bool
+    converged_failing: bool          # scoring.converged_but_failing
     regression: str | None       # the baseline comparison's kind, when it is a regression
     config: list[str]            # configuration changes against the baseline
     title: str                   # the full task name, for a tooltip
@@ -154,6 +156,7 @@ def _cell(r, anchor: str, note: dict | None) -> MatrixCell:
     return MatrixCell(anchor=anchor, verdict=r.verdict, label=label, glyph=glyph, error_mha=r.error_mha,
                       ratio=ratio, scale=scale_class(r.error_mha, r.threshold_mha),
                       not_converged=r.converged is False and r.verdict != "unconverged",
+                      converged_failing=converged_but_failing(r.verdict, r.converged),
                       regression=(note or {}).get("regression"), config=list((note or {}).get("config") or []),
                       title=task_label(r.case, r.basis, r.encoding, r.method, full_encoding=True),
                       tags=list(r.tags))

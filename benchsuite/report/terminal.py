@@ -10,7 +10,7 @@ Chemistry first, plain text, fixed width, no colour:
 4. the tasks that did not pass, worst first, each led by its error in mHa and its size in units
    of the threshold, then its verdict and its task (:func:`benchsuite.report.naming.task_label`);
    the method's message, if any, on the next line;
-5. unconverged results, how stochastic fail claims were controlled, the baseline comparison;
+5. unconverged results, converged-but-failing results, how stochastic fail claims were controlled, the baseline comparison;
 6. a last line ``gate passed`` or ``gate failed: <reasons>``, exactly the stored decision.
 
 Never counts verdicts to decide anything: the decision is ``gate`` (``GateDecision.to_dict()``).
@@ -130,6 +130,9 @@ def render_summary(run, rows, gate: dict) -> str:
     if gate["unconverged"]:
         rule = "they fail the gate (--require-converged)" if gate["require_converged"] else "flagged only"
         lines += _listed(f"not converged ({len(gate['unconverged'])}, {rule}):", gate["unconverged"])
+    if gate.get("converged_failing"):
+        lines += _listed(f"converged but not passing ({len(gate['converged_failing'])}; the method stopped on its "
+                         "own criterion, not a solver success):", gate["converged_failing"])
     st = gate["stochastic"]
     if st["n_tasks"]:
         lines.append(f"stochastic fail claims: {st['procedure_name']} over {st['n_tasks']} task(s), "
