@@ -133,15 +133,15 @@ def test_split_localised_integrals_are_a_rotation_of_the_canonical_ones(registry
     spread (the one-electron matrix's off-diagonal weight) changes."""
     from pyscf import fci
 
-    case = _chain(registry, 8, 1.8)
+    case = _chain(registry, 6, 1.8)
     prep = solve_scf(prepare(case))
     ints = prep.integrals
     loc = dmrg_module.split_localised(ints, prep.mol, prep.mf.mo_coeff)
     assert loc.reference_energy_ha() == pytest.approx(ints.reference_energy_ha(), abs=1e-9)
-    # the whole (4e, 4e) sector, 4,900 determinants: PySCF's determinant Hamiltonian, dense eigenvalues
+    # the whole (3a, 3b) sector, 400 determinants: PySCF's determinant Hamiltonian, dense eigenvalues
     # (no Davidson tolerance in the way at this near-degenerate stretched chain)
     energies = [np.linalg.eigvalsh(fci.direct_spin1.pspace(x.h1_ha, x.eri_ha, x.n_orbitals,
-                                                           (x.n_alpha, x.n_beta), np=5000)[1])[0]
+                                                           (x.n_alpha, x.n_beta), np=400)[1])[0]
                 for x in (ints, loc)]
     assert energies[0] == pytest.approx(energies[1], abs=1e-9)
     assert not np.allclose(np.abs(loc.h1_ha), np.abs(ints.h1_ha), atol=1e-3)
@@ -149,8 +149,8 @@ def test_split_localised_integrals_are_a_rotation_of_the_canonical_ones(registry
 
 def test_case_schedule_reaches_block2_and_the_cache_key(registry, tmp_path):
     """A case's [dmrg] schedule (here split-localised orbitals, M = 50, 100) is the one block2 runs:
-    recorded in the rung's details and note, part of the cache key (the built-in schedule is a miss),
-    and the H8/1.8 A DMRG energy equals PySCF FCI within 1e-6 Eh."""
+    recorded in the rung's details and note, part of the cache key (the same bond dimensions on
+    canonical orbitals are a miss), and the H8/1.8 A DMRG energy equals PySCF FCI within 1e-6 Eh."""
     pytest.importorskip("pyblock2")
     from benchsuite.chem.cache import DiskCache
     from benchsuite.registry.case import DmrgSchedule
@@ -164,5 +164,6 @@ def test_case_schedule_reaches_block2_and_the_cache_key(registry, tmp_path):
     assert d.details["schedule"]["bond_dims"] == [50, 100]
     assert d.details["schedule"]["orbitals"] == "split-localised" and "split-localised" in d.note
     assert d.energy_ha == pytest.approx(_fci(case), abs=AGREEMENT_HA)
-    plain = reference_ladder(dataclasses.replace(case, dmrg=None), cache=cache, max_determinants=0)
+    canonical = dataclasses.replace(schedule, orbitals="canonical")
+    plain = reference_ladder(dataclasses.replace(case, dmrg=canonical), cache=cache, max_determinants=0)
     assert plain.cache_status == "miss" and plain.primary.details["schedule"]["orbitals"] == "canonical"
