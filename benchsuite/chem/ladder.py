@@ -179,10 +179,18 @@ def exact_in_space(ints: MOIntegrals, multiplicity: int, label: str, method: str
                 s2=s2, n_determinants=ndet, sector_lowest_ha=sector_lowest)
 
 
-def dmrg_rung(ints: MOIntegrals, multiplicity: int, label: str,
-              settings: dmrg_module.DmrgSettings | None = None) -> Rung:
-    """The DMRG rung (:mod:`benchsuite.chem.dmrg`): extrapolated energy with its uncertainty; ``skipped``
-    without block2, ``failed`` (no energy) when block2 raises or the state's <S^2> or <N> is off."""
+def dmrg_integrals(prep: Prepared, settings: dmrg_module.DmrgSettings) -> MOIntegrals:
+    """The active-space integrals in the orbitals the schedule asks for (canonical or split-localised)."""
+    if settings.orbitals == "split-localised":
+        return dmrg_module.split_localised(prep.integrals, prep.mol, prep.mf.mo_coeff)
+    return prep.integrals
+
+
+def dmrg_rung(prep: Prepared, label: str, settings: dmrg_module.DmrgSettings) -> Rung:
+    """The DMRG rung (:mod:`benchsuite.chem.dmrg`) on a solved ``prep``: extrapolated energy with its
+    uncertainty; ``skipped`` without block2, ``failed`` (no energy) when block2 raises or the state's
+    <S^2> or <N> is off."""
+    ints, multiplicity = prep.integrals, prep.case.multiplicity
     if dmrg_module.block2_version() is None:
         return Rung("dmrg", None, None, label, 0.0, "skipped", dmrg_module.INSTALL_HINT)
     if ints.n_orbitals > dmrg_module.MAX_ORBITALS:
@@ -190,14 +198,14 @@ def dmrg_rung(ints: MOIntegrals, multiplicity: int, label: str,
                     f"{ints.n_orbitals} active orbitals exceed the DMRG rung's limit of {dmrg_module.MAX_ORBITALS}")
     t0 = time.perf_counter()
     try:
-        rec = dmrg_module.run_dmrg(ints, multiplicity, settings)
+        rec = dmrg_module.run_dmrg(dmrg_integrals(prep, settings), multiplicity, settings)
     except Exception as exc:  # a reference engine records a failed rung, never aborts the ladder
         return Rung("dmrg", None, None, label, time.perf_counter() - t0, "failed",
                     f"block2: {type(exc).__name__}: {exc}")
     details = {k: v for k, v in rec.items() if k not in ("energy_ha", "uncertainty_ha", "variational_ha", "s2")}
     problems = dmrg_module.state_problems(rec, multiplicity, ints.n_electrons)
     points = rec["points"]
-    note = (f"M = {', '.join(str(p['bond_dim']) for p in points)}; extrapolated to zero discarded weight "
+    note = (f"{settings.orbitals} orbitals; M = {', '.join(str(p['bond_dim']) for p in points)}; extrapolated to zero discarded weight "
             f"over the last {rec['fit']['n_points']}; u = {rec['uncertainty_ha'] * 1000:.3g} mHa")
     if problems:
         return Rung("dmrg", None, None, label, rec["seconds"], "failed",
@@ -310,7 +318,7 @@ def compute_ladder(prep: Prepared, max_determinants: int = DEFAULT_MAX_DETERMINA
         exact.correlation_ha = exact.energy_ha - e_hf
     rungs.append(exact)
     if _wants_dmrg(dmrg, exact.status == "skipped"):
-        d = dmrg_rung(ints, prep.case.multiplicity, space.label, dmrg_settings)
+        d = dmrg_rung(prep, space.label, dmrg_settings or dmrg_module.default_settings(prep.case.dmrg))
         if d.energy_ha is not None:
             d.correlation_ha = d.energy_ha - e_hf
         rungs.append(d)
@@ -347,7 +355,7 @@ def reference_ladder(case: Case, basis: Basis | str | None = None, cache: DiskCa
     fields = {**prep.fields, "max_determinants": int(max_determinants), "restricted": restricted_kind(prep),
               "ladder_version": LADDER_VERSION}
     if _wants_dmrg(dmrg, prep.space.n_determinants > max_determinants):
-        settings = dmrg_settings or dmrg_module.default_settings()
+        settings = dmrg_settings or dmrg_module.default_settings(case.dmrg)
         fields["dmrg"] = {**settings.to_key(), "block2": dmrg_module.block2_version()}
 
     def compute():

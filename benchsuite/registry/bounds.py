@@ -51,3 +51,17 @@ MAX_ABS_ENERGY_HA = 1.0e9
 
 #: Longest case name (characters); names become file names, table cells and task keys.
 MAX_NAME_LENGTH = 64
+
+#: Largest DMRG bond dimension a case file may ask for.  The two-site sweep holds
+#: ~ k^2 M^2 renormalised operators of k orbitals in memory; M = 4000 for the 40-orbital
+#: limit of the DMRG rung is already several GB, beyond any machine the gate runs on.
+MAX_DMRG_BOND_DIM = 4000
+#: Most bond dimensions in a case's DMRG schedule (each costs at least one sweep).
+MAX_DMRG_BOND_DIMS = 12
+#: Most sweeps per bond dimension (a converged sweep repeats its energy; more only costs time).
+MAX_DMRG_SWEEPS_PER_DIM = 20
+#: Largest perturbative noise: past 1e-2 the noise term swamps the density matrix it perturbs.
+MAX_DMRG_NOISE = 1.0e-2
+#: Davidson tolerance range: below 1e-12 it is under double-precision noise of a sweep energy,
+#: above 1e-5 the sweep energy is not good to the microhartree the rung reports.
+DMRG_DAVIDSON_TOL_RANGE = (1.0e-12, 1.0e-5)

@@ -75,6 +75,30 @@ class Scan:
     move: tuple[int, ...] = ()
 
 
+#: The orbitals a DMRG run may use (:class:`DmrgSchedule`).
+DMRG_ORBITAL_CHOICES = ("canonical", "split-localised")
+
+
+@dataclass(frozen=True)
+class DmrgSchedule:
+    """A case's DMRG schedule (the ``[dmrg]`` table); its defaults are the built-in schedule.
+
+    ``bond_dims`` strictly increasing; for each, ``sweeps_per_dim`` two-site sweeps, the first
+    ``noisy_sweeps`` with perturbative ``noise``; the line through the last ``fit_points`` bond
+    dimensions gives the extrapolation.  ``orbitals``: ``"canonical"`` (the SCF orbitals) or
+    ``"split-localised"`` (Foster-Boys localisation within the occupied, singly occupied and
+    virtual active blocks separately, so the SCF determinant is unchanged).
+    """
+
+    bond_dims: tuple[int, ...] = (100, 200, 300, 400)
+    sweeps_per_dim: int = 4
+    noisy_sweeps: int = 2
+    noise: float = 1e-5
+    davidson_tol: float = 1e-9
+    fit_points: int = 3
+    orbitals: str = "canonical"
+
+
 @dataclass(frozen=True)
 class Case:
     """One molecule at one geometry, validated.
@@ -103,6 +127,7 @@ class Case:
     scan_length: float | None = None
     notes: str = ""
     threshold_mha: float | None = None
+    dmrg: DmrgSchedule | None = None
 
     @property
     def formula(self) -> str:

@@ -21,9 +21,11 @@ from benchsuite.errors import InputError
 from benchsuite.registry import bounds
 from benchsuite.registry.bounds import MAX_CASE_FILE_BYTES, MAX_NESTING_DEPTH, MIN_ATOM_DISTANCE_ANGSTROM
 from benchsuite.registry.case import (
+    DMRG_ORBITAL_CHOICES,
     ActiveSpace,
     Basis,
     Case,
+    DmrgSchedule,
     PublishedValue,
     Scan,
     format_length,
@@ -36,7 +38,9 @@ NAME_PATTERN = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")  # used with fullmatch: no 
 
 REQUIRED = ("name", "title", "units", "charge", "multiplicity", "atoms", "basis", "tags",
             "geometry_source")
-OPTIONAL = ("frozen_core", "active_space", "scan", "reference", "notes", "threshold_mha")
+OPTIONAL = ("frozen_core", "active_space", "scan", "reference", "notes", "threshold_mha", "dmrg")
+DMRG_FIELDS = ("bond_dims", "sweeps_per_dim", "noisy_sweeps", "noise", "davidson_tol", "fit_points",
+               "orbitals")
 REFERENCE_FIELDS = {"method", "basis", "energy_ha", "source", "note", "from_memory"}
 
 
@@ -311,6 +315,67 @@ def _parse_scan(raw: Any, path: Path, coords: np.ndarray, units: str) -> Scan:
     return Scan(bond=(bond[0], bond[1]), lengths=vals, move=tuple(move))
 
 
+def _bounded_int(raw: dict, key: str, low: int, high: int, default: int, path: Path) -> int:
+    """``raw[key]`` (or ``default``) as an integer in ``[low, high]``; field ``dmrg.<key>``."""
+    if key not in raw:
+        return default
+    value = check_type(raw[key], int, path, f"dmrg.{key}", "an integer")
+    if not low <= value <= high:
+        raise InputError(f"{show(value)} is out of range ({low}..{high})", path, f"dmrg.{key}")
+    return value
+
+
+def _dmrg_bond_dims(raw: Any, path: Path) -> tuple[int, ...]:
+    name = "dmrg.bond_dims"
+    if not isinstance(raw, list) or not all(isinstance(m, int) and not isinstance(m, bool) for m in raw):
+        raise InputError(f"expected a list of integers, got {show(raw)}", path, name)
+    if not 2 <= len(raw) <= bounds.MAX_DMRG_BOND_DIMS:
+        raise InputError(f"{len(raw)} bond dimensions; give 2..{bounds.MAX_DMRG_BOND_DIMS} (the "
+                         "extrapolation needs at least two)", path, name)
+    if any(not 1 <= m <= bounds.MAX_DMRG_BOND_DIM for m in raw):
+        raise InputError(f"every bond dimension must lie in 1..{bounds.MAX_DMRG_BOND_DIM}, got {show(raw)}",
+                         path, name)
+    if any(b <= a for a, b in zip(raw, raw[1:])):
+        raise InputError(f"bond dimensions must increase strictly, got {show(raw)}", path, name)
+    return tuple(raw)
+
+
+def _dmrg_real(raw: dict, key: str, low: float, high: float, default: float, path: Path) -> float:
+    if key not in raw:
+        return default
+    value = check_number(raw[key], path, f"dmrg.{key}")
+    if not low <= value <= high:
+        raise InputError(f"{value:g} is out of range ({low:g}..{high:g})", path, f"dmrg.{key}")
+    return value
+
+
+def _parse_dmrg(raw: Any, path: Path) -> DmrgSchedule:
+    """The ``[dmrg]`` table: every field optional (the built-in schedule's value), each checked."""
+    check_type(raw, dict, path, "dmrg", "a table")
+    unknown = set(raw) - set(DMRG_FIELDS)
+    if unknown:
+        raise InputError(f"unknown field(s) {sorted(unknown)}; known: {', '.join(DMRG_FIELDS)}", path,
+                         f"dmrg.{sorted(unknown)[0]}")
+    base = DmrgSchedule()
+    dims = _dmrg_bond_dims(raw["bond_dims"], path) if "bond_dims" in raw else base.bond_dims
+    sweeps = _bounded_int(raw, "sweeps_per_dim", 1, bounds.MAX_DMRG_SWEEPS_PER_DIM, base.sweeps_per_dim, path)
+    if "noisy_sweeps" not in raw and base.noisy_sweeps >= sweeps:
+        raise InputError(f"with {sweeps} sweep(s) per bond dimension set noisy_sweeps below it (the "
+                         "energy of each bond dimension is taken from a noise-free last sweep)",
+                         path, "dmrg.sweeps_per_dim")
+    noisy = _bounded_int(raw, "noisy_sweeps", 0, sweeps - 1, base.noisy_sweeps, path)
+    fit = _bounded_int(raw, "fit_points", 2, len(dims), min(base.fit_points, len(dims)), path)
+    orbitals = check_type(raw.get("orbitals", base.orbitals), str, path, "dmrg.orbitals", "a string")
+    if orbitals not in DMRG_ORBITAL_CHOICES:
+        raise InputError(f"{show(orbitals)} is not one of {', '.join(DMRG_ORBITAL_CHOICES)}", path,
+                         "dmrg.orbitals")
+    return DmrgSchedule(
+        bond_dims=dims, sweeps_per_dim=sweeps, noisy_sweeps=noisy,
+        noise=_dmrg_real(raw, "noise", 0.0, bounds.MAX_DMRG_NOISE, base.noise, path),
+        davidson_tol=_dmrg_real(raw, "davidson_tol", *bounds.DMRG_DAVIDSON_TOL_RANGE, base.davidson_tol, path),
+        fit_points=fit, orbitals=orbitals)
+
+
 def _check_electrons(n_electrons: int, multiplicity: int, path: Path) -> None:
     if n_electrons < 1:
         raise InputError(f"the molecule has {n_electrons} electrons", path, "charge")
@@ -431,6 +496,7 @@ def parse_case_file(path: Path, bib_keys: set[str]) -> list[Case]:
         published=_parse_published(raw.get("reference", []), path, bib_keys),
         notes=check_type(raw.get("notes", ""), str, path, "notes", "a string"),
         threshold_mha=threshold,
+        dmrg=_parse_dmrg(raw["dmrg"], path) if "dmrg" in raw else None,
     )
     if scan is None:
         _check_distances(symbols, coords, units, path, "atoms")

@@ -4,6 +4,7 @@ against NumPy's polynomial fit.  Needs the optional block2 (``benchsuite[dmrg]``
 from __future__ import annotations
 
 import dataclasses
+import types
 
 import numpy as np
 import pytest
@@ -120,6 +121,49 @@ def test_rung_past_its_orbital_limit_is_skipped_before_block2(monkeypatch):
                        core_energy_ha=0.0, n_alpha=1, n_beta=1, n_core=0, mo_energy_ha=np.ones(n))
     monkeypatch.setattr(dmrg_module, "block2_version", lambda: "test")
     monkeypatch.setattr(dmrg_module, "run_dmrg", lambda *a, **k: pytest.fail("block2 was called"))
-    rung = dmrg_rung(ints, 1, "test space")
+    prep = types.SimpleNamespace(integrals=ints, case=types.SimpleNamespace(multiplicity=1))
+    rung = dmrg_rung(prep, "test space", dmrg_module.DmrgSettings())
     assert rung.status == "skipped" and rung.energy_ha is None
     assert f"{n} active orbitals exceed the DMRG rung's limit of {dmrg_module.MAX_ORBITALS}" in rung.note
+
+
+def test_split_localised_integrals_are_a_rotation_of_the_canonical_ones(registry):
+    """Split localisation keeps the SCF determinant's energy and the Hamiltonian's spectrum (its
+    FCI energy, PySCF's direct solver on both sets of integrals), and does localise: the orbitals'
+    spread (the one-electron matrix's off-diagonal weight) changes."""
+    from pyscf import fci
+
+    case = _chain(registry, 6, 1.8)
+    prep = solve_scf(prepare(case))
+    ints = prep.integrals
+    loc = dmrg_module.split_localised(ints, prep.mol, prep.mf.mo_coeff)
+    assert loc.reference_energy_ha() == pytest.approx(ints.reference_energy_ha(), abs=1e-9)
+    # the whole (3a, 3b) sector, 400 determinants: PySCF's determinant Hamiltonian, dense eigenvalues
+    # (no Davidson tolerance in the way at this near-degenerate stretched chain)
+    energies = [np.linalg.eigvalsh(fci.direct_spin1.pspace(x.h1_ha, x.eri_ha, x.n_orbitals,
+                                                           (x.n_alpha, x.n_beta), np=400)[1])[0]
+                for x in (ints, loc)]
+    assert energies[0] == pytest.approx(energies[1], abs=1e-9)
+    assert not np.allclose(np.abs(loc.h1_ha), np.abs(ints.h1_ha), atol=1e-3)
+
+
+def test_case_schedule_reaches_block2_and_the_cache_key(registry, tmp_path):
+    """A case's [dmrg] schedule (here split-localised orbitals, M = 50, 100) is the one block2 runs:
+    recorded in the rung's details and note, part of the cache key (the same bond dimensions on
+    canonical orbitals are a miss), and the H8/1.8 A DMRG energy equals PySCF FCI within 1e-6 Eh."""
+    pytest.importorskip("pyblock2")
+    from benchsuite.chem.cache import DiskCache
+    from benchsuite.registry.case import DmrgSchedule
+
+    schedule = DmrgSchedule(bond_dims=(50, 100), fit_points=2, orbitals="split-localised")
+    case = dataclasses.replace(_chain(registry, 8, 1.8), dmrg=schedule)
+    cache = DiskCache(tmp_path)
+    lad = reference_ladder(case, cache=cache, max_determinants=0)
+    d = lad.primary
+    assert d.method == "dmrg" and d.status == "ok", d
+    assert d.details["schedule"]["bond_dims"] == [50, 100]
+    assert d.details["schedule"]["orbitals"] == "split-localised" and "split-localised" in d.note
+    assert d.energy_ha == pytest.approx(_fci(case), abs=AGREEMENT_HA)
+    canonical = dataclasses.replace(schedule, orbitals="canonical")
+    plain = reference_ladder(dataclasses.replace(case, dmrg=canonical), cache=cache, max_determinants=0)
+    assert plain.cache_status == "miss" and plain.primary.details["schedule"]["orbitals"] == "canonical"

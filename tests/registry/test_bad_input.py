@@ -40,6 +40,23 @@ BAD_CASES = {
                                 "out of range"),
     "malformed TOML": (H2_CASE.replace('charge = 0', 'charge = = 0'), None, "line 4"),
     "unknown field": (H2_CASE + "multiplicty = 1\n", "multiplicty", "unknown field"),
+    "dmrg bond dimensions not increasing": (H2_CASE + "[dmrg]\nbond_dims = [200, 100]\n", "dmrg.bond_dims",
+                                            "increase strictly"),
+    "dmrg one bond dimension": (H2_CASE + "[dmrg]\nbond_dims = [400]\n", "dmrg.bond_dims", "at least two"),
+    "dmrg bond dimension too large": (H2_CASE + "[dmrg]\nbond_dims = [100, 40000]\n", "dmrg.bond_dims",
+                                      "1..4000"),
+    "dmrg unknown field": (H2_CASE + "[dmrg]\nbond_dim = [100, 200]\n", "dmrg.bond_dim", "unknown field"),
+    "dmrg every sweep noisy": (H2_CASE + "[dmrg]\nsweeps_per_dim = 2\nnoisy_sweeps = 2\n", "dmrg.noisy_sweeps",
+                               "out of range (0..1)"),
+    "dmrg default noisy sweeps leave no clean sweep": (H2_CASE + "[dmrg]\nsweeps_per_dim = 2\n",
+                                                       "dmrg.sweeps_per_dim", "noise-free"),
+    "dmrg fit past its points": (H2_CASE + "[dmrg]\nbond_dims = [100, 200]\nfit_points = 3\n",
+                                 "dmrg.fit_points", "out of range (2..2)"),
+    "dmrg unknown orbitals": (H2_CASE + '[dmrg]\norbitals = "natural"\n', "dmrg.orbitals",
+                              "canonical, split-localised"),
+    "dmrg noise out of range": (H2_CASE + "[dmrg]\nnoise = 0.5\n", "dmrg.noise", "out of range"),
+    "dmrg not a table": (H2_CASE.replace('name = "scratch-h2"', 'name = "scratch-h2"\ndmrg = 400'), "dmrg",
+                         "a table"),
 }
 
 
@@ -89,3 +106,16 @@ def test_unknown_case_and_suite(run_cli):
     assert code == 2 and "unknown case 'no-such-molecule'" in err
     code, _, err = run_cli("cases", "--suite", "no-such-suite")
     assert code == 2 and "unknown suite" in err
+
+
+def test_dmrg_table_parsed_with_defaults_for_missing_fields(scratch):
+    """A partial [dmrg] table: the given fields, the built-in schedule's for the rest, fit_points
+    cut to the number of bond dimensions; no table at all leaves ``dmrg`` None (built-in schedule)."""
+    from benchsuite.registry.case import DmrgSchedule
+    from benchsuite.registry.loader import parse_case_file
+
+    path = scratch(H2_CASE + '[dmrg]\nbond_dims = [150, 600]\norbitals = "split-localised"\n')
+    (case,) = parse_case_file(path, {"scratch-geometry"})
+    assert case.dmrg == DmrgSchedule(bond_dims=(150, 600), fit_points=2, orbitals="split-localised")
+    (plain,) = parse_case_file(scratch(H2_CASE, "plain.toml"), {"scratch-geometry"})
+    assert plain.dmrg is None

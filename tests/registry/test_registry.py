@@ -65,3 +65,23 @@ def test_cases_command_json(run_cli):
     assert code == 0
     rows = json.loads(out)
     assert rows and all({"name", "charge", "multiplicity", "basis", "geometry_source"} <= set(r) for r in rows)
+
+
+def test_beyond_exact_suites(registry):
+    """`beyond-exact` holds every case tagged beyond-exact (hydrogen chains of 14-20 atoms), each past
+    the default determinant limit in its space (STO-3G: one orbital per atom, half filling) and with
+    its own split-localised DMRG schedule; `beyond-exact-smoke` stays one case."""
+    from math import comb
+
+    from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
+
+    tagged = {c.name for c in registry.cases.values() if "beyond-exact" in c.tags}
+    suite = {e.case.name for e in registry.suite_entries("beyond-exact")}
+    assert suite == tagged and len(suite) >= 6
+    for name in suite:
+        case = registry.case(name)
+        n = len(case.symbols)
+        assert 14 <= n <= 20 and set(case.symbols) == {"H"}
+        assert comb(n, n // 2) ** 2 > DEFAULT_MAX_DETERMINANTS
+        assert case.dmrg is not None and case.dmrg.orbitals == "split-localised"
+    assert len(registry.suite_entries("beyond-exact-smoke")) == 1
