@@ -673,7 +673,7 @@ def task_size(task: Task, ladders: dict) -> TaskSize:
 
 def _scheduled(jobs: list[Job], ladders: dict, cfg: GridConfig, progress) -> list[Job]:
     """Method jobs longest-first by the cost model; ``progress`` hears the plan (``method_phase``)."""
-    clock = TaskClock(CostModel(cfg.history_s), cfg.workers)
+    clock = TaskClock(CostModel(cfg.history_s, budget(cfg.timeout_s, DEFAULT_TIMEOUT_S)), cfg.workers)
     sized = {id(j): (j.work.task.key, _method_name(j.work), task_size(j.work.task, ladders)) for j in jobs}
     ordered = longest_first(jobs, lambda j: clock.model.predict_s(*sized[id(j)]))
     clock.plan([sized[id(j)] for j in ordered])

@@ -223,7 +223,9 @@ _PROBLEM_COUNTS = ("n_qubits", "n_terms", "qwc_groups")
 def _checked_problem(problem) -> dict:
     if not isinstance(problem, dict):
         raise Breach(f"problem = {short_repr(problem)}: not a mapping")
-    out = {k: count(problem[k], f"problem.{k}", MAX_RESOURCE_VALUE) for k in _PROBLEM_COUNTS if k in problem}
+    # a count may be null: qwc_groups is not computed past qubit.metrics.MAX_GROUPING_STRINGS strings
+    out = {k: _optional(problem[k], lambda v, k=k: count(v, f"problem.{k}", MAX_RESOURCE_VALUE))
+           for k in _PROBLEM_COUNTS if k in problem}
     if "one_norm_ha" in problem:
         out["one_norm_ha"] = real(problem["one_norm_ha"], "problem.one_norm_ha", bound=math.inf)
     return out

@@ -63,8 +63,20 @@ class TaskSize:
         return self.sector_dimension * max(self.n_excitations, 1) / 1e6
 
 
+def refused(method: str, size: TaskSize) -> bool:
+    """Whether a built-in state-holding method refuses this size at once (a wide register or a
+    sector past :data:`benchsuite.methods.ucc.MAX_STATE_DETERMINANTS`): only the overhead is spent."""
+    from benchsuite.methods.ucc import MAX_STATE_DETERMINANTS
+    from benchsuite.qubit.register import WORD_QUBITS
+
+    holds_state = method in PRIORS and method != "hf-bitstring"
+    return holds_state and (size.sector_dimension > MAX_STATE_DETERMINANTS or size.n_spin_orbitals > WORD_QUBITS)
+
+
 def prior_s(method: str, size: TaskSize) -> float:
     """The prior cost of ``method`` on a problem of ``size``, in seconds."""
+    if refused(method, size):
+        return OVERHEAD_S
     scale_s, exponent = PRIORS.get(method, GENERIC_PRIOR)
     return OVERHEAD_S + scale_s * size.work ** exponent
 
@@ -72,13 +84,15 @@ def prior_s(method: str, size: TaskSize) -> float:
 class CostModel:
     """Predicted seconds per task: measured history first, else the refined prior.
 
+    ``limit_s`` (a task's time budget, s) bounds every prediction.
     ``history`` maps a task key to the seconds an earlier stored run measured for it (the method's
     own seconds, as stored); predictions are of a task's wall time in its worker (plus
     :data:`OVERHEAD_S`).
     """
 
-    def __init__(self, history: dict[str, float] | None = None):
+    def __init__(self, history: dict[str, float] | None = None, limit_s: float | None = None):
         self.history = dict(history or {})
+        self.limit_s = limit_s            # a task's time budget: no prediction exceeds it (plus overhead)
         self._log_ratios: dict[str, list[float]] = {}
 
     def factor(self, method: str) -> float:
@@ -88,8 +102,10 @@ class CostModel:
 
     def predict_s(self, key: str, method: str, size: TaskSize) -> float:
         if key in self.history:
-            return OVERHEAD_S + self.history[key]
-        return prior_s(method, size) * self.factor(method)
+            guess = OVERHEAD_S + self.history[key]
+        else:
+            guess = prior_s(method, size) * self.factor(method)
+        return guess if self.limit_s is None else min(guess, self.limit_s + OVERHEAD_S)
 
     def observe(self, key: str, method: str, size: TaskSize, seconds: float) -> None:
         """A finished task's measured seconds refine its method's factor (not for history tasks)."""

@@ -70,3 +70,12 @@ def test_clock_counts_pending_and_running_work():
     clock.finished("b", 4.0)
     assert clock.pending == ["c"] and set(clock.running) == {"a"}
     assert clock.eta_s(20.0) == pytest.approx(4.0)                 # a is late: max(0.1 * 20, 1) = 2 s more
+
+
+def test_refused_and_budget_bounded_predictions():
+    """The 120-qubit N2/cc-pVTZ case (60 orbitals, 7 + 7 electrons): state-holding built-ins refuse it
+    at once, so only the overhead is predicted; no prediction exceeds the task's time budget."""
+    wide = TaskSize.of_space(60, 7, 7)
+    assert prior_s("uccsd-vqe", wide) == OVERHEAD_S and prior_s("adapt-vqe", wide) == OVERHEAD_S
+    assert prior_s("lab-solver", wide) > 1e6                       # a plugin may not refuse: no shortcut
+    assert CostModel(limit_s=600.0).predict_s("k", "lab-solver", wide) == 600.0 + OVERHEAD_S
