@@ -478,6 +478,21 @@ class PairTable:
         table.pointers()
         return table
 
+    def appended(self, pairs) -> "PairTable":
+        """A new table with one more factor, ``pairs`` = (I, J, sigma); only the new indices are checked."""
+        i, j, sig = (np.asarray(a) for a in pairs)
+        for index in (i, j):
+            if index.size and (index.min() < 0 or index.max() >= self.dimension):
+                raise ValueError(f"pair index outside 0..{self.dimension - 1}")
+        offsets = np.append(self.offsets, self.offsets[-1] + i.size).astype(np.int64)
+        table = PairTable(offsets, np.concatenate([self.i, i]).astype(np.int64),
+                          np.concatenate([self.j, j]).astype(np.int64),
+                          np.concatenate([self.sigma, sig]).astype(np.float64), self.dimension)
+        for array in (table.offsets, table.i, table.j, table.sigma):
+            array.flags.writeable = False
+        table.pointers()
+        return table
+
     @property
     def n_factors(self) -> int:
         return self.offsets.size - 1
@@ -555,6 +570,20 @@ class ExponentialProduct:
         self.table = PairTable.build((space.pairs(exc) for exc in self.excitations), space.dimension)
         self._off, self._i, self._j, self._sig = self.table.offsets, self.table.i, self.table.j, self.table.sigma
         self.backend = _checked_backend(backend)
+
+    def extended(self, excitation: Excitation) -> "ExponentialProduct":
+        """This product with ``excitation`` appended as the last factor (acting last), on a parameter
+        of its own; the pair table is extended rather than rebuilt (ADAPT's growth)."""
+        if self.n_factors and not np.array_equal(self.parameter_index, np.arange(self.n_factors)):
+            raise ValueError("extended() needs one parameter per factor")
+        out = object.__new__(ExponentialProduct)
+        out.__dict__.update(self.__dict__)
+        out.excitations = self.excitations + [excitation]
+        out.parameter_index = np.arange(len(out.excitations))
+        out.n_parameters = len(out.excitations)
+        out.table = self.table.appended(self.space.pairs(excitation))
+        out._off, out._i, out._j, out._sig = out.table.offsets, out.table.i, out.table.j, out.table.sigma
+        return out
 
     @property
     def n_factors(self) -> int:

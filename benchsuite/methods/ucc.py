@@ -324,6 +324,64 @@ def minimise(product: ExponentialProduct, ham: SectorHamiltonian, x0, tolerance:
     return best
 
 
+def _positive_definite(matrix: np.ndarray) -> np.ndarray:
+    """The symmetric part of ``matrix`` if it is positive definite, else the identity of its size."""
+    sym = 0.5 * (matrix + matrix.T)
+    try:
+        np.linalg.cholesky(sym)
+    except np.linalg.LinAlgError:
+        return np.eye(sym.shape[0])
+    return sym
+
+
+def minimise_recycled(product: ExponentialProduct, ham: SectorHamiltonian, x0, inverse_hessian: np.ndarray,
+                      tolerance: float, max_iterations: int, deadline: float | None = None) -> tuple[Fit, np.ndarray]:
+    """E(theta) by dense BFGS from a given inverse-Hessian estimate; (lowest-energy Fit, final estimate).
+
+    scipy's BFGS (``hess_inv0``, Euclidean gradient norm < ``tolerance``).  ADAPT passes the estimate
+    of the previous re-optimisation bordered by the new angle's curvature, so a warm start needs a
+    handful of iterations instead of relearning the curvature of every old angle.  If BFGS stops
+    above tolerance (a line search losing precision near a stiff minimum), :func:`minimise` finishes
+    from the lowest point; the estimate returned is then the one BFGS reached.
+    """
+    from scipy.optimize import minimize
+
+    x0 = np.asarray(x0, dtype=float)
+    e0, g0, psi0 = product.energy_and_gradient(x0, ham)
+    best = Fit(x=x0.copy(), energy=e0, gradient=g0, state=psi0, evaluations=1)
+    if x0.size == 0 or best.gradient_norm < tolerance:
+        best.converged, best.message = True, "gradient below tolerance at the start"
+        return best, inverse_hessian
+
+    def fun(x):
+        if deadline is not None and time.perf_counter() > deadline:
+            raise _OutOfTime
+        best.evaluations += 1
+        e, g, psi = product.energy_and_gradient(x, ham)
+        if e < best.energy or (e == best.energy and np.linalg.norm(g) < best.gradient_norm):
+            best.x, best.energy, best.gradient, best.state = x.copy(), e, g, psi
+        return e, g
+
+    inverse_hessian = _positive_definite(inverse_hessian)
+    try:
+        with serial_blas():
+            res = minimize(fun, x0, jac=True, method="BFGS",
+                           options={"gtol": tolerance, "norm": 2, "hess_inv0": inverse_hessian,
+                                    "maxiter": max_iterations})
+    except _OutOfTime:
+        best.out_of_time, best.message = True, "time budget reached"
+        return best, inverse_hessian
+    best.iterations, best.message = int(res.nit), f"BFGS (recycled inverse Hessian): {res.message}"
+    best.converged = best.gradient_norm < tolerance
+    if not best.converged and best.iterations < max_iterations:
+        rest = minimise(product, ham, best.x, tolerance, max_iterations - best.iterations, deadline)
+        rest.iterations += best.iterations
+        rest.evaluations += best.evaluations
+        rest.message = f"{best.message}; then {rest.message}"
+        best = rest
+    return best, np.asarray(res.hess_inv)
+
+
 def _polish(evaluate, x, e, g, psi, tolerance: float, max_steps: int, memory: int = 20):
     """Limited-memory BFGS steps whose line search looks at the slope g(x + a d).d only.
 
@@ -641,6 +699,9 @@ class AdaptVQE:
         Option("growth_tolerance", float, 1e-4, "tolerance of the re-optimisation after each addition "
                "(gradient norm, Eh; never below gradient_tolerance); the last product is then optimised "
                "to gradient_tolerance", greater_than=0.0),
+        Option("reoptimiser", str, "bfgs-recycled", "re-optimisation after each addition: bfgs-recycled "
+               "(BFGS warm-started from the previous inverse-Hessian estimate) or lbfgsb (L-BFGS-B afresh)",
+               choices=("bfgs-recycled", "lbfgsb")),
         Option("pool", str, "gsd", "sd: spin-orbital singles and doubles from the reference; gsd: "
                "generalised spin-orbital singles and doubles", choices=("sd", "gsd")),
     )
@@ -681,7 +742,10 @@ class _AdaptGrowth:
     Each re-optimisation starts from the previous angles with the new one at zero and stops at
     ``growth_tolerance`` (a loose gradient norm: the next pool screening only needs the state,
     and the angles are refined again at every later addition); :meth:`finish` then optimises the
-    final product to ``gradient_tolerance``.
+    final product to ``gradient_tolerance``.  With ``reoptimiser`` 'bfgs-recycled' (default) each
+    re-optimisation is BFGS started from the previous one's inverse-Hessian estimate, bordered by
+    1 / d2E/dtheta2 of the new angle at zero (:meth:`_bordered_inverse_hessian`); 'lbfgsb' starts
+    L-BFGS-B afresh every time (the loop before the recycled estimate).
     """
 
     def __init__(self, setup: _Setup, pool: GeneratorPool, options: dict):
@@ -691,42 +755,79 @@ class _AdaptGrowth:
         self.chosen: list[int] = []
         self.product = ExponentialProduct(setup.space, [], reference=setup.reference)
         self.fit = minimise(self.product, setup.ham, np.zeros(0), self.tight, 1)
+        self.inverse_hessian = np.zeros((0, 0))
         self.trajectory, self.norms, self.largest = [setup.hf_energy], [], []
         self.iterations = self.evaluations = 0
         self.stop_message = ""
 
     def grow(self) -> str:
         """Add operators until a stop; returns 'converged', 'cap' or 'out of time'."""
-        threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
         while True:
-            grads = self.pool.gradients(self.fit.state, self.setup.ham.apply(self.fit.state))
+            hpsi = self.setup.ham.apply(self.fit.state)
+            grads = self.pool.gradients(self.fit.state, hpsi)
             norm = float(np.linalg.norm(grads))
             self.norms.append(norm)
             report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
-            if norm < threshold:
-                self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
-                                     f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
-                                     "of the pool, not necessarily the ground state)")
-                self.setup.notes.append(self.stop_message)
-                return "converged"
-            if len(self.chosen) >= cap:
-                self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
-                                     f"{norm:.2e} (threshold {threshold:g})")
-                self.setup.notes.append(self.stop_message)
-                return "cap"
-            if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
-                self.stop_message = "time budget reached while growing"
-                return "out of time"
+            stop = self._stop(norm)
+            if stop:
+                return stop
             pick = int(np.argmax(np.abs(grads)))
             self.largest.append(float(abs(grads[pick])))
             self.chosen.append(pick)
-            self.product = ExponentialProduct(self.setup.space, [self.pool.excitations[m] for m in self.chosen],
-                                              reference=self.setup.reference)
-            self._optimise(np.append(self.fit.x, 0.0), self.loose)
+            self.product = self.product.extended(self.pool.excitations[pick])
+            if self.options["reoptimiser"] == "bfgs-recycled":
+                self._optimise_recycled(hpsi)
+            else:
+                self._optimise(np.append(self.fit.x, 0.0), self.loose)
             self.trajectory.append(self.fit.energy)
             if self.fit.out_of_time:
                 self.stop_message = "time budget reached while re-optimising"
                 return "out of time"
+
+    def _stop(self, norm: float) -> str:
+        """'converged', 'cap', 'out of time' or '' (go on), with the stop message and note."""
+        threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
+        if norm < threshold:
+            self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
+                                 f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
+                                 "of the pool, not necessarily the ground state)")
+            self.setup.notes.append(self.stop_message)
+            return "converged"
+        if len(self.chosen) >= cap:
+            self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
+                                 f"{norm:.2e} (threshold {threshold:g})")
+            self.setup.notes.append(self.stop_message)
+            return "cap"
+        if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
+            self.stop_message = "time budget reached while growing"
+            return "out of time"
+        return ""
+
+    def _bordered_inverse_hessian(self, hpsi: np.ndarray) -> np.ndarray:
+        """The last inverse-Hessian estimate plus a row and column for the new angle.
+
+        Its diagonal entry is 1 / E'' with E''(0) = <psi|[[H, tau], tau]|psi>
+        = 2 <H psi|tau^2 psi> + 2 <tau psi|H|tau psi> (tau real antisymmetric; one H application),
+        or 1 where E'' is below 0.05 Eh (flat or concave).
+        """
+        old = self.inverse_hessian
+        n = old.shape[0] + 1
+        space, psi = self.setup.space, self.fit.state
+        tau = self.product.excitations[-1]
+        t_psi = space.apply_generator(tau, psi)
+        curvature = 2.0 * float(hpsi @ space.apply_generator(tau, t_psi)) + 2.0 * self.setup.ham.energy(t_psi)
+        h0 = np.eye(n)
+        h0[:-1, :-1] = old
+        h0[-1, -1] = 1.0 / curvature if curvature > 0.05 else 1.0
+        return h0
+
+    def _optimise_recycled(self, hpsi: np.ndarray) -> None:
+        h0 = self._bordered_inverse_hessian(hpsi)
+        self.fit, self.inverse_hessian = minimise_recycled(
+            self.product, self.setup.ham, np.append(self.fit.x, 0.0), h0, self.loose,
+            self.options["max_iterations"], self.setup.deadline)
+        self.iterations += self.fit.iterations
+        self.evaluations += self.fit.evaluations
 
     def _optimise(self, x0, tolerance: float) -> None:
         self.fit = minimise(self.product, self.setup.ham, x0, tolerance, self.options["max_iterations"],
@@ -737,7 +838,14 @@ class _AdaptGrowth:
     def finish(self) -> Fit:
         """The final product optimised to ``gradient_tolerance`` (warm), with the run's totals."""
         if self.chosen and not self.fit.out_of_time and self.loose > self.tight:
-            self._optimise(self.fit.x, self.tight)
+            if self.options["reoptimiser"] == "bfgs-recycled":
+                self.fit, self.inverse_hessian = minimise_recycled(
+                    self.product, self.setup.ham, self.fit.x, self.inverse_hessian, self.tight,
+                    self.options["max_iterations"], self.setup.deadline)
+                self.iterations += self.fit.iterations
+                self.evaluations += self.fit.evaluations
+            else:
+                self._optimise(self.fit.x, self.tight)
             self.trajectory[-1] = self.fit.energy     # the same product, angles finished
         self.fit.iterations, self.fit.evaluations = self.iterations, self.evaluations
         return self.fit
