@@ -611,19 +611,24 @@ class ExponentialProduct:
 
     def energy_and_gradient(self, theta, hamiltonian: SectorHamiltonian):
         """(E, dE/dtheta, U(theta)|reference>) by one forward and one reverse sweep."""
+        return self.energy_gradient_and_hpsi(theta, hamiltonian)[:3]
+
+    def energy_gradient_and_hpsi(self, theta, hamiltonian: SectorHamiltonian):
+        """(E, dE/dtheta, psi = U(theta)|reference>, H psi): :meth:`energy_and_gradient` and the H psi
+        it computes anyway (ADAPT's pool gradients at the optimum need it)."""
         c, s = self._angles(theta)
         psi = self.state(theta)
         lam = hamiltonian.apply(psi)
         lam = np.ascontiguousarray(lam, dtype=np.float64)
         energy = float(psi @ lam)
-        final = psi.copy()
+        final, hpsi = psi.copy(), lam.copy()
         gf = np.zeros(self.n_factors)
         if self.backend == "c":
             c_backward(self.table, psi, lam, c, s, gf)
         else:
             self._backward_numpy(psi, lam, c, s, gf)
         grad = np.bincount(self.parameter_index, weights=gf, minlength=self.n_parameters)
-        return energy, grad, final
+        return energy, grad, final, hpsi
 
     # numpy versions of the two C loops (identical arithmetic)
     def _forward_numpy(self, psi, c, s):

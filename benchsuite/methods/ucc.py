@@ -253,6 +253,7 @@ class Fit:
     converged: bool = False
     out_of_time: bool = False
     message: str = ""
+    hpsi: np.ndarray | None = None      # H |state>, where the optimiser kept it
 
     @property
     def gradient_norm(self) -> float:
@@ -335,33 +336,29 @@ def _positive_definite(matrix: np.ndarray) -> np.ndarray:
 
 
 def minimise_recycled(product: ExponentialProduct, ham: SectorHamiltonian, x0, inverse_hessian: np.ndarray,
-                      tolerance: float, max_iterations: int, deadline: float | None = None) -> tuple[Fit, np.ndarray]:
+                      tolerance: float, max_iterations: int, deadline: float | None = None,
+                      start: Fit | None = None) -> tuple[Fit, np.ndarray]:
     """E(theta) by dense BFGS from a given inverse-Hessian estimate; (lowest-energy Fit, final estimate).
 
     scipy's BFGS (``hess_inv0``, Euclidean gradient norm < ``tolerance``).  ADAPT passes the estimate
     of the previous re-optimisation bordered by the new angle's curvature, so a warm start needs a
-    handful of iterations instead of relearning the curvature of every old angle.  If BFGS stops
-    above tolerance (a line search losing precision near a stiff minimum), :func:`minimise` finishes
-    from the lowest point; the estimate returned is then the one BFGS reached.
+    handful of iterations instead of relearning the curvature of every old angle; ``start`` (the
+    energy, gradient, state and H psi already known at ``x0``) saves the first evaluation.  The Fit
+    keeps H psi of its point (``hpsi``).  If BFGS stops above tolerance (a line search losing
+    precision near a stiff minimum), :func:`minimise` finishes from the lowest point; the estimate
+    returned is then the one BFGS reached.
     """
     from scipy.optimize import minimize
 
     x0 = np.asarray(x0, dtype=float)
-    e0, g0, psi0 = product.energy_and_gradient(x0, ham)
-    best = Fit(x=x0.copy(), energy=e0, gradient=g0, state=psi0, evaluations=1)
+    if start is None:
+        e0, g0, psi0, hpsi0 = product.energy_gradient_and_hpsi(x0, ham)
+        start = Fit(x0.copy(), e0, g0, psi0, evaluations=1, hpsi=hpsi0)
+    best = start
     if x0.size == 0 or best.gradient_norm < tolerance:
         best.converged, best.message = True, "gradient below tolerance at the start"
         return best, inverse_hessian
-
-    def fun(x):
-        if deadline is not None and time.perf_counter() > deadline:
-            raise _OutOfTime
-        best.evaluations += 1
-        e, g, psi = product.energy_and_gradient(x, ham)
-        if e < best.energy or (e == best.energy and np.linalg.norm(g) < best.gradient_norm):
-            best.x, best.energy, best.gradient, best.state = x.copy(), e, g, psi
-        return e, g
-
+    fun = _recording_objective(product, ham, best, deadline)
     inverse_hessian = _positive_definite(inverse_hessian)
     try:
         with serial_blas():
@@ -380,6 +377,24 @@ def minimise_recycled(product: ExponentialProduct, ham: SectorHamiltonian, x0, i
         rest.message = f"{best.message}; then {rest.message}"
         best = rest
     return best, np.asarray(res.hess_inv)
+
+
+def _recording_objective(product: ExponentialProduct, ham: SectorHamiltonian, best: Fit, deadline):
+    """(E, gradient) of theta for scipy; ``best`` keeps the lowest point (with its state and H psi).
+
+    A call at ``best.x`` itself is answered from ``best`` (scipy's first call is at the start).
+    """
+    def fun(x):
+        if np.array_equal(x, best.x):
+            return best.energy, best.gradient
+        if deadline is not None and time.perf_counter() > deadline:
+            raise _OutOfTime
+        best.evaluations += 1
+        e, g, psi, hpsi = product.energy_gradient_and_hpsi(x, ham)
+        if e < best.energy or (e == best.energy and np.linalg.norm(g) < best.gradient_norm):
+            best.x, best.energy, best.gradient, best.state, best.hpsi = x.copy(), e, g, psi, hpsi
+        return e, g
+    return fun
 
 
 def _polish(evaluate, x, e, g, psi, tolerance: float, max_steps: int, memory: int = 20):
@@ -763,7 +778,7 @@ class _AdaptGrowth:
     def grow(self) -> str:
         """Add operators until a stop; returns 'converged', 'cap' or 'out of time'."""
         while True:
-            hpsi = self.setup.ham.apply(self.fit.state)
+            hpsi = self.fit.hpsi if self.fit.hpsi is not None else self.setup.ham.apply(self.fit.state)
             grads = self.pool.gradients(self.fit.state, hpsi)
             norm = float(np.linalg.norm(grads))
             self.norms.append(norm)
@@ -776,7 +791,7 @@ class _AdaptGrowth:
             self.chosen.append(pick)
             self.product = self.product.extended(self.pool.excitations[pick])
             if self.options["reoptimiser"] == "bfgs-recycled":
-                self._optimise_recycled(hpsi)
+                self._optimise_recycled(hpsi, float(grads[pick]))
             else:
                 self._optimise(np.append(self.fit.x, 0.0), self.loose)
             self.trajectory.append(self.fit.energy)
@@ -821,11 +836,16 @@ class _AdaptGrowth:
         h0[-1, -1] = 1.0 / curvature if curvature > 0.05 else 1.0
         return h0
 
-    def _optimise_recycled(self, hpsi: np.ndarray) -> None:
+    def _optimise_recycled(self, hpsi: np.ndarray, new_gradient: float) -> None:
+        """Warm BFGS after an addition; the start needs no evaluation: the new factor is the identity
+        at angle 0, so energy, state and old gradients are the last fit's, the new one its pool gradient."""
         h0 = self._bordered_inverse_hessian(hpsi)
+        old = self.fit
+        start = Fit(np.append(old.x, 0.0), old.energy, np.append(old.gradient, new_gradient), old.state,
+                    hpsi=hpsi)
         self.fit, self.inverse_hessian = minimise_recycled(
-            self.product, self.setup.ham, np.append(self.fit.x, 0.0), h0, self.loose,
-            self.options["max_iterations"], self.setup.deadline)
+            self.product, self.setup.ham, start.x, h0, self.loose, self.options["max_iterations"],
+            self.setup.deadline, start)
         self.iterations += self.fit.iterations
         self.evaluations += self.fit.evaluations
 
