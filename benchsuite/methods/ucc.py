@@ -743,12 +743,36 @@ class AdaptVQE:
         product = growth.product
         result = _result(problem, setup, product, fit, f"ADAPT ({options['pool']} pool)", {
             "pool": options["pool"], "pool_size": len(pool), "adapt_iterations": len(growth.chosen),
+            "reoptimiser": options["reoptimiser"], "stop": ADAPT_STOPS[stop],
+            **_stationary_point_checks(setup, fit, stop),
             "stop_reason": growth.stop_message, "remaining_pool_gradient_norm": growth.norms[-1],
             "operator_sequence": [candidates[m].label() for m in growth.chosen],
             "energy_trajectory": growth.trajectory, "pool_gradient_norms": growth.norms,
             "selected_gradients": growth.largest, "optimizer_iterations": fit.iterations})
         result.iterations = len(growth.chosen)
         return result
+
+
+#: ``metadata["stop"]`` of an ADAPT result, by the loop's stop: only 'small-pool-gradient' sets
+#: ``converged``, and it certifies a stationary point of the pool, not the ground state.
+ADAPT_STOPS = {"converged": "small-pool-gradient", "cap": "operator-cap", "out of time": "time-budget"}
+
+
+def _stationary_point_checks(setup: _Setup, fit: Fit, stop: str) -> dict:
+    """Diagnostics of the final state and the flag for a gate: 'converged' here is not 'accurate'.
+
+    ``stationary_point_only`` is true when the run stopped on a small pool gradient: the result's
+    ``converged`` then certifies a stationary point of the pool, which can be an excited one (every
+    pool gradient 2 <H psi|tau psi> vanishes at any eigenstate), so a gate should report a converged
+    result above its threshold as converged but failing.  ``reference_weight`` =
+    |<reference|psi>|^2 and ``energy_variance_ha2`` = <H^2> - <H>^2 (Eh^2) describe the state; neither
+    tells a ground state from an excited stationary point by itself.
+    """
+    weight = float(fit.state @ setup.reference) ** 2
+    hpsi = fit.hpsi if fit.hpsi is not None else setup.ham.apply(fit.state)
+    variance = max(float(hpsi @ hpsi) - float(fit.state @ hpsi) ** 2, 0.0)
+    return {"reference_weight": weight, "energy_variance_ha2": variance,
+            "stationary_point_only": stop == "converged"}
 
 
 class _AdaptGrowth:
