@@ -365,7 +365,7 @@ def _bind(lib: ctypes.CDLL) -> ctypes.CDLL:
     lib.bs_backward.restype = None
     lib.bs_backward.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr, ptr, ptr]
     lib.bs_pool_gradients.restype = None
-    lib.bs_pool_gradients.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr]
+    lib.bs_pool_gradients.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr]
     lib.bs_source_sha256.restype = ctypes.c_char_p
     lib.bs_source_sha256.argtypes = []
     return lib
@@ -522,11 +522,46 @@ def c_backward(table: PairTable, psi, lam, cos, sin, gradient) -> None:
     _KERNEL["lib"].bs_backward(*args)
 
 
-def c_pool_gradients(table: PairTable, psi: np.ndarray, hpsi: np.ndarray, gradient: np.ndarray) -> None:
-    """The C pool sweep: ``gradient[m] = 2 <hpsi|tau_m|psi>`` for every factor m of ``table``, arrays checked."""
-    nf = table.n_factors
-    args = (_require("psi", psi, table.dimension, np.float64), _require("hpsi", hpsi, table.dimension, np.float64),
-            nf, *table.pointers(), _require("gradient", gradient, nf, np.float64, writable=True))
+@dataclass(frozen=True)
+class CompactPairs:
+    """A :class:`PairTable` in a third of the memory, for the pool sweep: int32 I; int32 J with the
+    sign folded in (J where sigma = +1, ~J, the bitwise complement, where sigma = -1)."""
+
+    offsets: np.ndarray      # int64, n_factors + 1
+    i: np.ndarray            # int32, offsets[-1]
+    j_signed: np.ndarray     # int32, offsets[-1]
+    dimension: int
+
+    @classmethod
+    def from_table(cls, table: PairTable) -> "CompactPairs":
+        if table.dimension >= 2 ** 31:
+            raise ValueError(f"{table.dimension} determinants do not fit 32-bit pair indices")
+        j = table.j.astype(np.int32)
+        out = cls(table.offsets, table.i.astype(np.int32), np.where(table.sigma > 0, j, ~j), table.dimension)
+        out.j_signed.flags.writeable = out.i.flags.writeable = False
+        return out
+
+    @property
+    def n_factors(self) -> int:
+        return self.offsets.size - 1
+
+    def unpacked(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(I, J, sigma) as int64, int64, float64."""
+        negative = self.j_signed < 0
+        j = np.where(negative, ~self.j_signed, self.j_signed).astype(np.int64)
+        return self.i.astype(np.int64), j, np.where(negative, -1.0, 1.0)
+
+    def pointers(self) -> tuple[int, int, int]:
+        n_pairs = int(self.offsets[-1]) if self.offsets.size else -1
+        return (_require("offsets", self.offsets, self.n_factors + 1, np.int64),
+                _require("i", self.i, n_pairs, np.int32), _require("j_signed", self.j_signed, n_pairs, np.int32))
+
+
+def c_pool_gradients(pairs: CompactPairs, psi: np.ndarray, hpsi: np.ndarray, gradient: np.ndarray) -> None:
+    """The C pool sweep: ``gradient[m] = 2 <hpsi|tau_m|psi>`` for every factor m of ``pairs``, arrays checked."""
+    nf = pairs.n_factors
+    args = (_require("psi", psi, pairs.dimension, np.float64), _require("hpsi", hpsi, pairs.dimension, np.float64),
+            nf, *pairs.pointers(), _require("gradient", gradient, nf, np.float64, writable=True))
     _KERNEL["lib"].bs_pool_gradients(*args)
 
 
@@ -658,16 +693,18 @@ class GeneratorPool:
 
     dE/dtheta_m = <psi|[H, tau_m]|psi> = 2 <H psi|tau_m|psi> (tau_m real anti-symmetric, H real
     symmetric): one H|psi> for the whole pool, then one pass over each generator's pairs (the C
-    kernel, or the same sum in NumPy).  Built once per problem; the pair table is shared with the
-    products grown from it (:meth:`ExponentialProduct.extended`).
+    kernel, or the same sum in NumPy).  Built once per problem; its pairs are kept compact
+    (:class:`CompactPairs`), the pass being limited by memory traffic; the space's per-excitation
+    cache serves the products grown from it (:meth:`ExponentialProduct.extended`).
     """
 
     def __init__(self, space: DeterminantSpace, excitations, backend: str | None = None):
         self.space = space
         self.excitations = list(excitations)
-        self.table = PairTable.build((space.pairs(e) for e in self.excitations), space.dimension)
+        table = PairTable.build((space.pairs(e) for e in self.excitations), space.dimension)
+        self.pairs = CompactPairs.from_table(table)
         self.backend = _checked_backend(backend)
-        self._owner = np.repeat(np.arange(len(self.excitations)), np.diff(self.table.offsets))
+        self._owner = np.repeat(np.arange(len(self.excitations)), np.diff(table.offsets))
 
     def __len__(self) -> int:
         return len(self.excitations)
@@ -677,10 +714,10 @@ class GeneratorPool:
         hpsi = np.ascontiguousarray(hpsi, dtype=np.float64)
         if self.backend == "c":
             out = np.zeros(len(self))
-            c_pool_gradients(self.table, psi, hpsi, out)
+            c_pool_gradients(self.pairs, psi, hpsi, out)
             return out
-        t = self.table
-        w = t.sigma * (hpsi[t.i] * psi[t.j] - hpsi[t.j] * psi[t.i])
+        i, j, sigma = self.pairs.unpacked()
+        w = sigma * (hpsi[i] * psi[j] - hpsi[j] * psi[i])
         return 2.0 * np.bincount(self._owner, weights=w, minlength=len(self))
 
 
