@@ -606,18 +606,20 @@ class ExponentialProduct:
         self._off, self._i, self._j, self._sig = self.table.offsets, self.table.i, self.table.j, self.table.sigma
         self.backend = _checked_backend(backend)
 
-    def extended(self, excitation: Excitation) -> "ExponentialProduct":
-        """This product with ``excitation`` appended as the last factor (acting last), on a parameter
-        of its own; the pair table is extended rather than rebuilt (ADAPT's growth)."""
-        if self.n_factors and not np.array_equal(self.parameter_index, np.arange(self.n_factors)):
-            raise ValueError("extended() needs one parameter per factor")
+    def extended(self, excitations) -> "ExponentialProduct":
+        """This product with ``excitations`` (one, or a sequence) appended as the last factors, in
+        order, all on one new parameter; the pair table is extended rather than rebuilt (ADAPT)."""
+        new = [excitations] if isinstance(excitations, Excitation) else list(excitations)
         out = object.__new__(ExponentialProduct)
         out.__dict__.update(self.__dict__)
-        out.excitations = self.excitations + [excitation]
-        out.parameter_index = np.arange(len(out.excitations))
-        out.n_parameters = len(out.excitations)
-        out.table = self.table.appended(self.space.pairs(excitation))
-        out._off, out._i, out._j, out._sig = out.table.offsets, out.table.i, out.table.j, out.table.sigma
+        out.excitations = self.excitations + new
+        out.parameter_index = np.append(self.parameter_index, [self.n_parameters] * len(new)).astype(np.int64)
+        out.n_parameters = self.n_parameters + 1
+        table = self.table
+        for exc in new:
+            table = table.appended(self.space.pairs(exc))
+        out.table = table
+        out._off, out._i, out._j, out._sig = table.offsets, table.i, table.j, table.sigma
         return out
 
     @property

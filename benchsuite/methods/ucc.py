@@ -97,6 +97,8 @@ from benchsuite.qubit.majorana import ladder_words_pauli
 from benchsuite.qubit.pauli import PauliSum, popcount
 
 COMPILATION = "cnot-staircase"
+#: ADAPT-VQE's default for ``spin_complemented``.
+SPIN_COMPLEMENTED_DEFAULT = False
 #: Standard deviation of the random starting parameters of k-UpCCGSD.
 RANDOM_SCALE = 0.1
 OPTIMIZER = "scipy L-BFGS-B, exact reverse-mode gradient"
@@ -150,6 +152,33 @@ def generalised_doubles(n: int) -> list[Excitation]:
                     out.append(Excitation((_so(p, ALPHA, n), _so(q, BETA, n)),
                                           (_so(r, ALPHA, n), _so(s, BETA, n)), n))
     return out
+
+
+def spin_mirror(excitation: Excitation) -> Excitation:
+    """The excitation with every alpha spin-orbital made beta and every beta one alpha (same order)."""
+    n = excitation.n_orbitals
+    flip = lambda p: p + n if p < n else p - n  # noqa: E731
+    return Excitation(tuple(map(flip, excitation.creators)), tuple(map(flip, excitation.annihilators)), n)
+
+
+def _generator_key(excitation: Excitation) -> tuple:
+    """The same key for tau and -tau (T and T^dagger): the two index sets, in a fixed order."""
+    c, x = tuple(sorted(excitation.creators)), tuple(sorted(excitation.annihilators))
+    return min((c, x), (x, c))
+
+
+def spin_complemented(candidates) -> list[tuple[Excitation, ...]]:
+    """Each candidate with its spin mirror, to share one parameter; a candidate whose mirror is the
+    same generator stays alone, and a mirror already grouped (as itself or -itself) is not repeated."""
+    groups, seen = [], set()
+    for exc in candidates:
+        key = _generator_key(exc)
+        if key in seen:
+            continue
+        mirror = spin_mirror(exc)
+        seen.update({key, _generator_key(mirror)})
+        groups.append((exc,) if _generator_key(mirror) == key else (exc, mirror))
+    return groups
 
 
 def upccgsd_layer(n: int, spin_complemented: bool) -> tuple[list[Excitation], list[int]]:
@@ -719,6 +748,8 @@ class AdaptVQE:
                choices=("bfgs-recycled", "lbfgsb")),
         Option("pool", str, "gsd", "sd: spin-orbital singles and doubles from the reference; gsd: "
                "generalised spin-orbital singles and doubles", choices=("sd", "gsd")),
+        Option("spin_complemented", bool, SPIN_COMPLEMENTED_DEFAULT, "each pool generator with its alpha<->beta "
+               "mirror image on one parameter (two factors, the mirror second)"),
     )
     variational = True
     stochastic = False
@@ -732,8 +763,8 @@ class AdaptVQE:
         else:
             candidates = (generalised_singles(n, ALPHA) + generalised_singles(n, BETA)
                           + generalised_doubles(n))
-        pool = GeneratorPool(setup.space, candidates)          # built once, reused every iteration
-        growth = _AdaptGrowth(setup, pool, options)
+        groups = spin_complemented(candidates) if options["spin_complemented"] else [(c,) for c in candidates]
+        growth = _AdaptGrowth(setup, groups, options)
         stop = growth.grow()
         fit = growth.finish()
         fit.converged = stop == "converged" and fit.converged
@@ -742,11 +773,12 @@ class AdaptVQE:
             setup.notes.append("last re-optimisation did not reach its gradient tolerance")
         product = growth.product
         result = _result(problem, setup, product, fit, f"ADAPT ({options['pool']} pool)", {
-            "pool": options["pool"], "pool_size": len(pool), "adapt_iterations": len(growth.chosen),
+            "pool": options["pool"], "pool_size": len(groups), "adapt_iterations": len(growth.chosen),
+            "spin_complemented": options["spin_complemented"],
             "reoptimiser": options["reoptimiser"], "stop": ADAPT_STOPS[stop],
             **_stationary_point_checks(setup, fit, stop),
             "stop_reason": growth.stop_message, "remaining_pool_gradient_norm": growth.norms[-1],
-            "operator_sequence": [candidates[m].label() for m in growth.chosen],
+            "operator_sequence": [" + ".join(e.label() for e in groups[m]) for m in growth.chosen],
             "energy_trajectory": growth.trajectory, "pool_gradient_norms": growth.norms,
             "selected_gradients": growth.largest, "optimizer_iterations": fit.iterations})
         result.iterations = len(growth.chosen)
@@ -787,8 +819,10 @@ class _AdaptGrowth:
     L-BFGS-B afresh every time (the loop before the recycled estimate).
     """
 
-    def __init__(self, setup: _Setup, pool: GeneratorPool, options: dict):
-        self.setup, self.pool, self.options = setup, pool, options
+    def __init__(self, setup: _Setup, groups: list, options: dict):
+        self.setup, self.groups, self.options = setup, groups, options
+        self.pool = GeneratorPool(setup.space, [e for g in groups for e in g])   # built once, reused
+        self.member_group = np.repeat(np.arange(len(groups)), [len(g) for g in groups])
         self.tight = options["gradient_tolerance"]
         self.loose = max(options["growth_tolerance"], self.tight)
         self.chosen: list[int] = []
@@ -803,7 +837,8 @@ class _AdaptGrowth:
         """Add operators until a stop; returns 'converged', 'cap' or 'out of time'."""
         while True:
             hpsi = self.fit.hpsi if self.fit.hpsi is not None else self.setup.ham.apply(self.fit.state)
-            grads = self.pool.gradients(self.fit.state, hpsi)
+            grads = np.bincount(self.member_group, weights=self.pool.gradients(self.fit.state, hpsi),
+                                minlength=len(self.groups))     # a shared angle: the members' sum
             norm = float(np.linalg.norm(grads))
             self.norms.append(norm)
             report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
@@ -813,7 +848,7 @@ class _AdaptGrowth:
             pick = int(np.argmax(np.abs(grads)))
             self.largest.append(float(abs(grads[pick])))
             self.chosen.append(pick)
-            self.product = self.product.extended(self.pool.excitations[pick])
+            self.product = self.product.extended(self.groups[pick])
             if self.options["reoptimiser"] == "bfgs-recycled":
                 self._optimise_recycled(hpsi, float(grads[pick]))
             else:
@@ -847,14 +882,16 @@ class _AdaptGrowth:
 
         Its diagonal entry is 1 / E'' with E''(0) = <psi|[[H, tau], tau]|psi>
         = 2 <H psi|tau^2 psi> + 2 <tau psi|H|tau psi> (tau real antisymmetric; one H application),
-        or 1 where E'' is below 0.05 Eh (flat or concave).
+        or 1 where E'' is below 0.05 Eh (flat or concave); for a spin-complemented pair tau is the sum of
+        the two generators (exact to first order in the shared angle: a starting estimate only).
         """
         old = self.inverse_hessian
         n = old.shape[0] + 1
         space, psi = self.setup.space, self.fit.state
-        tau = self.product.excitations[-1]
-        t_psi = space.apply_generator(tau, psi)
-        curvature = 2.0 * float(hpsi @ space.apply_generator(tau, t_psi)) + 2.0 * self.setup.ham.energy(t_psi)
+        taus = self.groups[self.chosen[-1]]
+        t_psi = sum(space.apply_generator(tau, psi) for tau in taus)
+        tt_psi = sum(space.apply_generator(tau, t_psi) for tau in taus)
+        curvature = 2.0 * float(hpsi @ tt_psi) + 2.0 * self.setup.ham.energy(t_psi)
         h0 = np.eye(n)
         h0[:-1, :-1] = old
         h0[-1, -1] = 1.0 / curvature if curvature > 0.05 else 1.0

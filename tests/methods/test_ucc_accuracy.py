@@ -237,13 +237,14 @@ def test_adapt_records_trajectory_and_sequence():
 
 
 def test_adapt_reoptimisers_reach_fci_alike():
-    """The recycled-BFGS loop (default) and L-BFGS-B afresh both end within 1e-4 Eh of FCI (PySCF,
-    same orbital space) on the stretched H4 chain, where the reference is 0.1 Eh above it."""
+    """The recycled-BFGS loop, L-BFGS-B afresh and the spin-complemented pool all end within 1e-4 Eh of
+    FCI (PySCF, same orbital space) on the stretched H4 chain, where the reference is 0.1 Eh above it."""
     problem = make_problem("h4-chain-1p5")
     e_fci = fci_energy(problem.integrals)
-    for reoptimiser in ("bfgs-recycled", "lbfgsb"):
-        result = run(AdaptVQE(), problem, reoptimiser=reoptimiser)
+    for reoptimiser, mirrored in (("bfgs-recycled", False), ("lbfgsb", False), ("bfgs-recycled", True)):
+        result = run(AdaptVQE(), problem, reoptimiser=reoptimiser, spin_complemented=mirrored)
         assert result.converged and result.metadata["reoptimiser"] == reoptimiser
+        assert result.metadata["spin_complemented"] is mirrored
         check_variational(result, e_fci)
         assert result.energy_ha - e_fci < 1e-4
         assert result.metadata["gradient_norm"] < 1e-6
