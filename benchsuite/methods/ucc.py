@@ -44,8 +44,19 @@ parameters):
   Pools: ``sd`` the spin-orbital singles and doubles of the UCCSD list;
   ``gsd`` generalised spin-orbital singles (p > q, each spin) and doubles
   over four distinct spin-orbitals (alpha-alpha, beta-beta, alpha-beta).
+  With ``spin_complemented`` each generator and its alpha<->beta mirror share
+  one angle (two factors, the mirror acting second; gradient at zero = the
+  sum of the two).  Each re-optimisation after an addition is warm (new
+  angle 0) and loose (``growth_tolerance``); by default (``reoptimiser``
+  ``bfgs-recycled``) it is dense BFGS started from the previous
+  re-optimisation's inverse-Hessian estimate bordered by 1/E'' of the new
+  angle, needing no evaluation at its start (energy, state and old
+  gradients are unchanged by a factor at angle 0).  ``converged`` means the
+  pool gradient fell below the threshold: a stationary point of the pool,
+  which can be an excited one (``metadata['stationary_point_only']``).
 
-Optimiser: scipy's L-BFGS-B with the exact reverse-mode gradient; converged
+Optimiser (UCCSD, k-UpCCGSD, ADAPT's final optimisation with ``reoptimiser`` lbfgsb, and any
+fallback): scipy's L-BFGS-B with the exact reverse-mode gradient; converged
 means the Euclidean norm of the gradient is below ``gradient_tolerance``.
 L-BFGS-B is restarted from its last point while it still lowers the
 energy, then finished, if needed, by limited-memory BFGS steps with a
@@ -102,6 +113,8 @@ SPIN_COMPLEMENTED_DEFAULT = False
 #: Standard deviation of the random starting parameters of k-UpCCGSD.
 RANDOM_SCALE = 0.1
 OPTIMIZER = "scipy L-BFGS-B, exact reverse-mode gradient"
+RECYCLED_OPTIMIZER = ("scipy BFGS from the previous inverse-Hessian estimate (L-BFGS-B if it stalls), "
+                      "exact reverse-mode gradient")
 PRODUCT_ORDER = "U = prod_k exp(theta_k tau_k), first listed excitation acts first on the reference"
 SIGN_CONVENTION = ("single T = a+_a a_i, double T = a+_a a+_b a_j a_i (i<j, a<b in alpha-block labels "
                    "P = p (alpha), n + p (beta)), tau = T - T^dagger")
@@ -776,6 +789,7 @@ class AdaptVQE:
             "pool": options["pool"], "pool_size": len(groups), "adapt_iterations": len(growth.chosen),
             "spin_complemented": options["spin_complemented"],
             "reoptimiser": options["reoptimiser"], "stop": ADAPT_STOPS[stop],
+            "optimizer": RECYCLED_OPTIMIZER if options["reoptimiser"] == "bfgs-recycled" else OPTIMIZER,
             **_stationary_point_checks(setup, fit, stop),
             "stop_reason": growth.stop_message, "remaining_pool_gradient_norm": growth.norms[-1],
             "operator_sequence": [" + ".join(e.label() for e in groups[m]) for m in growth.chosen],
@@ -842,7 +856,7 @@ class _AdaptGrowth:
             norm = float(np.linalg.norm(grads))
             self.norms.append(norm)
             report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
-            stop = self._stop(norm)
+            stop = self._stop(norm, grads)
             if stop:
                 return stop
             pick = int(np.argmax(np.abs(grads)))
@@ -858,7 +872,7 @@ class _AdaptGrowth:
                 self.stop_message = "time budget reached while re-optimising"
                 return "out of time"
 
-    def _stop(self, norm: float) -> str:
+    def _stop(self, norm: float, grads: np.ndarray) -> str:
         """'converged', 'cap', 'out of time' or '' (go on), with the stop message and note."""
         threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
         if norm < threshold:
@@ -868,8 +882,12 @@ class _AdaptGrowth:
             self.setup.notes.append(self.stop_message)
             return "converged"
         if len(self.chosen) >= cap:
+            largest = float(np.max(np.abs(grads)))
+            share = int(np.sum(np.abs(grads) >= 0.01 * threshold))
+            tail = "; every one below the threshold: the norm is a tail of many small ones" if largest < threshold else ""
             self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
-                                 f"{norm:.2e} (threshold {threshold:g})")
+                                 f"{norm:.2e} (threshold {threshold:g}); largest |gradient| {largest:.2e}, "
+                                 f"{share} of {grads.size} pool members at or above {0.01 * threshold:g}{tail}")
             self.setup.notes.append(self.stop_message)
             return "cap"
         if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
