@@ -109,7 +109,7 @@ from benchsuite.qubit.pauli import PauliSum, popcount
 
 COMPILATION = "cnot-staircase"
 #: ADAPT-VQE's default for ``spin_complemented``.
-SPIN_COMPLEMENTED_DEFAULT = False
+SPIN_COMPLEMENTED_DEFAULT = True
 #: Standard deviation of the random starting parameters of k-UpCCGSD.
 RANDOM_SCALE = 0.1
 OPTIMIZER = "scipy L-BFGS-B, exact reverse-mode gradient"
