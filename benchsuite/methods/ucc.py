@@ -749,7 +749,7 @@ class AdaptVQE:
     options = (
         Option("gradient_threshold", float, 1e-3, "stop when the Euclidean norm of the pool gradients is below this",
                greater_than=0.0),
-        Option("max_operators", int, 400, "cap on the number of operators added", minimum=0),
+        Option("max_operators", int, 1000, "cap on the number of operators added", minimum=0),
         _MAX_ITER,
         Option("gradient_tolerance", float, 1e-6, "tolerance of the final optimisation (gradient norm, Eh)",
                greater_than=0.0),
