@@ -5,7 +5,8 @@
  * ctypes, so this file has no Python module initialisation.  Arrays are C-contiguous float64/int64
  * whose lengths determinant.py checks before every call:
  *   psi, lam: dimension;  off: nf + 1 (off[0] = 0, ascending);  ii, jj, sg: off[nf];
- *   cs, sn, gf: nf;  psi/hpsi of bs_pool_gradients: dimension;  every ii[k], jj[k] in 0 .. dimension - 1.
+ *   cs, sn, gf: nf;  psi/hpsi of bs_pool_gradients: dimension;  every ii[k], jj[k] in 0 .. dimension - 1
+ *   (bs_pool_gradients: int32 ii, jj of length off[nf], ii[k] and jj[k] or ~jj[k] in 0 .. dimension - 1).
  */
 #include <stdint.h>
 
@@ -55,16 +56,20 @@ void bs_backward(double *psi, double *lam, int64_t nf, const int64_t *off, const
     }
 }
 
-/* pool gradients at one state: gf[m] = 2 <hpsi|tau_m|psi> = 2 sum_k sg[k] (hpsi[i] psi[j] - hpsi[j] psi[i])
- * over the pairs off[m] .. off[m+1] of generator m (the commutator form <psi|[H, tau_m]|psi>) */
+/* pool gradients at one state: gf[m] = 2 <hpsi|tau_m|psi> = 2 sum_k sigma_k (hpsi[I] psi[J] - hpsi[J] psi[I])
+ * over the pairs off[m] .. off[m+1] of generator m (the commutator form <psi|[H, tau_m]|psi>).  Compact
+ * pairs (a third of the memory traffic of the product's tables): I = ii[k]; jj[k] >= 0 is J with
+ * sigma = +1, jj[k] < 0 is ~J (bitwise complement) with sigma = -1. */
 void bs_pool_gradients(const double *psi, const double *hpsi, int64_t nf, const int64_t *off,
-                       const int64_t *ii, const int64_t *jj, const double *sg, double *gf)
+                       const int32_t *ii, const int32_t *jj, double *gf)
 {
     for (int64_t f = 0; f < nf; f++) {
         double g = 0.0;
         for (int64_t k = off[f]; k < off[f + 1]; k++) {
-            const int64_t i = ii[k], j = jj[k];
-            g += sg[k] * (hpsi[i] * psi[j] - hpsi[j] * psi[i]);
+            const int32_t i = ii[k], e = jj[k];
+            const int32_t j = e >= 0 ? e : ~e;
+            const double t = hpsi[i] * psi[j] - hpsi[j] * psi[i];
+            g += e >= 0 ? t : -t;
         }
         gf[f] = 2.0 * g;
     }

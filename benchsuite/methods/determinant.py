@@ -365,7 +365,7 @@ def _bind(lib: ctypes.CDLL) -> ctypes.CDLL:
     lib.bs_backward.restype = None
     lib.bs_backward.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr, ptr, ptr]
     lib.bs_pool_gradients.restype = None
-    lib.bs_pool_gradients.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr, ptr]
+    lib.bs_pool_gradients.argtypes = [ptr, ptr, n, ptr, ptr, ptr, ptr]
     lib.bs_source_sha256.restype = ctypes.c_char_p
     lib.bs_source_sha256.argtypes = []
     return lib
@@ -478,6 +478,21 @@ class PairTable:
         table.pointers()
         return table
 
+    def appended(self, pairs) -> "PairTable":
+        """A new table with one more factor, ``pairs`` = (I, J, sigma); only the new indices are checked."""
+        i, j, sig = (np.asarray(a) for a in pairs)
+        for index in (i, j):
+            if index.size and (index.min() < 0 or index.max() >= self.dimension):
+                raise ValueError(f"pair index outside 0..{self.dimension - 1}")
+        offsets = np.append(self.offsets, self.offsets[-1] + i.size).astype(np.int64)
+        table = PairTable(offsets, np.concatenate([self.i, i]).astype(np.int64),
+                          np.concatenate([self.j, j]).astype(np.int64),
+                          np.concatenate([self.sigma, sig]).astype(np.float64), self.dimension)
+        for array in (table.offsets, table.i, table.j, table.sigma):
+            array.flags.writeable = False
+        table.pointers()
+        return table
+
     @property
     def n_factors(self) -> int:
         return self.offsets.size - 1
@@ -507,11 +522,46 @@ def c_backward(table: PairTable, psi, lam, cos, sin, gradient) -> None:
     _KERNEL["lib"].bs_backward(*args)
 
 
-def c_pool_gradients(table: PairTable, psi: np.ndarray, hpsi: np.ndarray, gradient: np.ndarray) -> None:
-    """The C pool sweep: ``gradient[m] = 2 <hpsi|tau_m|psi>`` for every factor m of ``table``, arrays checked."""
-    nf = table.n_factors
-    args = (_require("psi", psi, table.dimension, np.float64), _require("hpsi", hpsi, table.dimension, np.float64),
-            nf, *table.pointers(), _require("gradient", gradient, nf, np.float64, writable=True))
+@dataclass(frozen=True)
+class CompactPairs:
+    """A :class:`PairTable` in a third of the memory, for the pool sweep: int32 I; int32 J with the
+    sign folded in (J where sigma = +1, ~J, the bitwise complement, where sigma = -1)."""
+
+    offsets: np.ndarray      # int64, n_factors + 1
+    i: np.ndarray            # int32, offsets[-1]
+    j_signed: np.ndarray     # int32, offsets[-1]
+    dimension: int
+
+    @classmethod
+    def from_table(cls, table: PairTable) -> "CompactPairs":
+        if table.dimension >= 2 ** 31:
+            raise ValueError(f"{table.dimension} determinants do not fit 32-bit pair indices")
+        j = table.j.astype(np.int32)
+        out = cls(table.offsets, table.i.astype(np.int32), np.where(table.sigma > 0, j, ~j), table.dimension)
+        out.j_signed.flags.writeable = out.i.flags.writeable = False
+        return out
+
+    @property
+    def n_factors(self) -> int:
+        return self.offsets.size - 1
+
+    def unpacked(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(I, J, sigma) as int64, int64, float64."""
+        negative = self.j_signed < 0
+        j = np.where(negative, ~self.j_signed, self.j_signed).astype(np.int64)
+        return self.i.astype(np.int64), j, np.where(negative, -1.0, 1.0)
+
+    def pointers(self) -> tuple[int, int, int]:
+        n_pairs = int(self.offsets[-1]) if self.offsets.size else -1
+        return (_require("offsets", self.offsets, self.n_factors + 1, np.int64),
+                _require("i", self.i, n_pairs, np.int32), _require("j_signed", self.j_signed, n_pairs, np.int32))
+
+
+def c_pool_gradients(pairs: CompactPairs, psi: np.ndarray, hpsi: np.ndarray, gradient: np.ndarray) -> None:
+    """The C pool sweep: ``gradient[m] = 2 <hpsi|tau_m|psi>`` for every factor m of ``pairs``, arrays checked."""
+    nf = pairs.n_factors
+    args = (_require("psi", psi, pairs.dimension, np.float64), _require("hpsi", hpsi, pairs.dimension, np.float64),
+            nf, *pairs.pointers(), _require("gradient", gradient, nf, np.float64, writable=True))
     _KERNEL["lib"].bs_pool_gradients(*args)
 
 
@@ -556,6 +606,22 @@ class ExponentialProduct:
         self._off, self._i, self._j, self._sig = self.table.offsets, self.table.i, self.table.j, self.table.sigma
         self.backend = _checked_backend(backend)
 
+    def extended(self, excitations) -> "ExponentialProduct":
+        """This product with ``excitations`` (one, or a sequence) appended as the last factors, in
+        order, all on one new parameter; the pair table is extended rather than rebuilt (ADAPT)."""
+        new = [excitations] if isinstance(excitations, Excitation) else list(excitations)
+        out = object.__new__(ExponentialProduct)
+        out.__dict__.update(self.__dict__)
+        out.excitations = self.excitations + new
+        out.parameter_index = np.append(self.parameter_index, [self.n_parameters] * len(new)).astype(np.int64)
+        out.n_parameters = self.n_parameters + 1
+        table = self.table
+        for exc in new:
+            table = table.appended(self.space.pairs(exc))
+        out.table = table
+        out._off, out._i, out._j, out._sig = table.offsets, table.i, table.j, table.sigma
+        return out
+
     @property
     def n_factors(self) -> int:
         return len(self.excitations)
@@ -582,19 +648,24 @@ class ExponentialProduct:
 
     def energy_and_gradient(self, theta, hamiltonian: SectorHamiltonian):
         """(E, dE/dtheta, U(theta)|reference>) by one forward and one reverse sweep."""
+        return self.energy_gradient_and_hpsi(theta, hamiltonian)[:3]
+
+    def energy_gradient_and_hpsi(self, theta, hamiltonian: SectorHamiltonian):
+        """(E, dE/dtheta, psi = U(theta)|reference>, H psi): :meth:`energy_and_gradient` and the H psi
+        it computes anyway (ADAPT's pool gradients at the optimum need it)."""
         c, s = self._angles(theta)
         psi = self.state(theta)
         lam = hamiltonian.apply(psi)
         lam = np.ascontiguousarray(lam, dtype=np.float64)
         energy = float(psi @ lam)
-        final = psi.copy()
+        final, hpsi = psi.copy(), lam.copy()
         gf = np.zeros(self.n_factors)
         if self.backend == "c":
             c_backward(self.table, psi, lam, c, s, gf)
         else:
             self._backward_numpy(psi, lam, c, s, gf)
         grad = np.bincount(self.parameter_index, weights=gf, minlength=self.n_parameters)
-        return energy, grad, final
+        return energy, grad, final, hpsi
 
     # numpy versions of the two C loops (identical arithmetic)
     def _forward_numpy(self, psi, c, s):
@@ -624,16 +695,18 @@ class GeneratorPool:
 
     dE/dtheta_m = <psi|[H, tau_m]|psi> = 2 <H psi|tau_m|psi> (tau_m real anti-symmetric, H real
     symmetric): one H|psi> for the whole pool, then one pass over each generator's pairs (the C
-    kernel, or the same sum in NumPy).  Built once per problem; the pair table is shared with the
-    products grown from it (:meth:`ExponentialProduct.extended`).
+    kernel, or the same sum in NumPy).  Built once per problem; its pairs are kept compact
+    (:class:`CompactPairs`), the pass being limited by memory traffic; the space's per-excitation
+    cache serves the products grown from it (:meth:`ExponentialProduct.extended`).
     """
 
     def __init__(self, space: DeterminantSpace, excitations, backend: str | None = None):
         self.space = space
         self.excitations = list(excitations)
-        self.table = PairTable.build((space.pairs(e) for e in self.excitations), space.dimension)
+        table = PairTable.build((space.pairs(e) for e in self.excitations), space.dimension)
+        self.pairs = CompactPairs.from_table(table)
         self.backend = _checked_backend(backend)
-        self._owner = np.repeat(np.arange(len(self.excitations)), np.diff(self.table.offsets))
+        self._owner = np.repeat(np.arange(len(self.excitations)), np.diff(table.offsets))
 
     def __len__(self) -> int:
         return len(self.excitations)
@@ -643,10 +716,10 @@ class GeneratorPool:
         hpsi = np.ascontiguousarray(hpsi, dtype=np.float64)
         if self.backend == "c":
             out = np.zeros(len(self))
-            c_pool_gradients(self.table, psi, hpsi, out)
+            c_pool_gradients(self.pairs, psi, hpsi, out)
             return out
-        t = self.table
-        w = t.sigma * (hpsi[t.i] * psi[t.j] - hpsi[t.j] * psi[t.i])
+        i, j, sigma = self.pairs.unpacked()
+        w = sigma * (hpsi[i] * psi[j] - hpsi[j] * psi[i])
         return 2.0 * np.bincount(self._owner, weights=w, minlength=len(self))
 
 

@@ -44,8 +44,19 @@ parameters):
   Pools: ``sd`` the spin-orbital singles and doubles of the UCCSD list;
   ``gsd`` generalised spin-orbital singles (p > q, each spin) and doubles
   over four distinct spin-orbitals (alpha-alpha, beta-beta, alpha-beta).
+  With ``spin_complemented`` each generator and its alpha<->beta mirror share
+  one angle (two factors, the mirror acting second; gradient at zero = the
+  sum of the two).  Each re-optimisation after an addition is warm (new
+  angle 0) and loose (``growth_tolerance``); by default (``reoptimiser``
+  ``bfgs-recycled``) it is dense BFGS started from the previous
+  re-optimisation's inverse-Hessian estimate bordered by 1/E'' of the new
+  angle, needing no evaluation at its start (energy, state and old
+  gradients are unchanged by a factor at angle 0).  ``converged`` means the
+  pool gradient fell below the threshold: a stationary point of the pool,
+  which can be an excited one (``metadata['stationary_point_only']``).
 
-Optimiser: scipy's L-BFGS-B with the exact reverse-mode gradient; converged
+Optimiser (UCCSD, k-UpCCGSD, ADAPT's final optimisation with ``reoptimiser`` lbfgsb, and any
+fallback): scipy's L-BFGS-B with the exact reverse-mode gradient; converged
 means the Euclidean norm of the gradient is below ``gradient_tolerance``.
 L-BFGS-B is restarted from its last point while it still lowers the
 energy, then finished, if needed, by limited-memory BFGS steps with a
@@ -97,9 +108,13 @@ from benchsuite.qubit.majorana import ladder_words_pauli
 from benchsuite.qubit.pauli import PauliSum, popcount
 
 COMPILATION = "cnot-staircase"
+#: ADAPT-VQE's default for ``spin_complemented``.
+SPIN_COMPLEMENTED_DEFAULT = True
 #: Standard deviation of the random starting parameters of k-UpCCGSD.
 RANDOM_SCALE = 0.1
 OPTIMIZER = "scipy L-BFGS-B, exact reverse-mode gradient"
+RECYCLED_OPTIMIZER = ("scipy BFGS from the previous inverse-Hessian estimate (L-BFGS-B if it stalls), "
+                      "exact reverse-mode gradient")
 PRODUCT_ORDER = "U = prod_k exp(theta_k tau_k), first listed excitation acts first on the reference"
 SIGN_CONVENTION = ("single T = a+_a a_i, double T = a+_a a+_b a_j a_i (i<j, a<b in alpha-block labels "
                    "P = p (alpha), n + p (beta)), tau = T - T^dagger")
@@ -150,6 +165,33 @@ def generalised_doubles(n: int) -> list[Excitation]:
                     out.append(Excitation((_so(p, ALPHA, n), _so(q, BETA, n)),
                                           (_so(r, ALPHA, n), _so(s, BETA, n)), n))
     return out
+
+
+def spin_mirror(excitation: Excitation) -> Excitation:
+    """The excitation with every alpha spin-orbital made beta and every beta one alpha (same order)."""
+    n = excitation.n_orbitals
+    flip = lambda p: p + n if p < n else p - n  # noqa: E731
+    return Excitation(tuple(map(flip, excitation.creators)), tuple(map(flip, excitation.annihilators)), n)
+
+
+def _generator_key(excitation: Excitation) -> tuple:
+    """The same key for tau and -tau (T and T^dagger): the two index sets, in a fixed order."""
+    c, x = tuple(sorted(excitation.creators)), tuple(sorted(excitation.annihilators))
+    return min((c, x), (x, c))
+
+
+def spin_complemented(candidates) -> list[tuple[Excitation, ...]]:
+    """Each candidate with its spin mirror, to share one parameter; a candidate whose mirror is the
+    same generator stays alone, and a mirror already grouped (as itself or -itself) is not repeated."""
+    groups, seen = [], set()
+    for exc in candidates:
+        key = _generator_key(exc)
+        if key in seen:
+            continue
+        mirror = spin_mirror(exc)
+        seen.update({key, _generator_key(mirror)})
+        groups.append((exc,) if _generator_key(mirror) == key else (exc, mirror))
+    return groups
 
 
 def upccgsd_layer(n: int, spin_complemented: bool) -> tuple[list[Excitation], list[int]]:
@@ -240,6 +282,7 @@ class Fit:
     converged: bool = False
     out_of_time: bool = False
     message: str = ""
+    hpsi: np.ndarray | None = None      # H |state>, where the optimiser kept it
 
     @property
     def gradient_norm(self) -> float:
@@ -309,6 +352,78 @@ def minimise(product: ExponentialProduct, ham: SectorHamiltonian, x0, tolerance:
         best.message = f"iteration cap {max_iterations} reached"
     best.converged = best.gradient_norm < tolerance
     return best
+
+
+def _positive_definite(matrix: np.ndarray) -> np.ndarray:
+    """The symmetric part of ``matrix`` if it is positive definite, else the identity of its size."""
+    sym = 0.5 * (matrix + matrix.T)
+    try:
+        np.linalg.cholesky(sym)
+    except np.linalg.LinAlgError:
+        return np.eye(sym.shape[0])
+    return sym
+
+
+def minimise_recycled(product: ExponentialProduct, ham: SectorHamiltonian, x0, inverse_hessian: np.ndarray,
+                      tolerance: float, max_iterations: int, deadline: float | None = None,
+                      start: Fit | None = None) -> tuple[Fit, np.ndarray]:
+    """E(theta) by dense BFGS from a given inverse-Hessian estimate; (lowest-energy Fit, final estimate).
+
+    scipy's BFGS (``hess_inv0``, Euclidean gradient norm < ``tolerance``).  ADAPT passes the estimate
+    of the previous re-optimisation bordered by the new angle's curvature, so a warm start needs a
+    handful of iterations instead of relearning the curvature of every old angle; ``start`` (the
+    energy, gradient, state and H psi already known at ``x0``) saves the first evaluation.  The Fit
+    keeps H psi of its point (``hpsi``).  If BFGS stops above tolerance (a line search losing
+    precision near a stiff minimum), :func:`minimise` finishes from the lowest point; the estimate
+    returned is then the one BFGS reached.
+    """
+    from scipy.optimize import minimize
+
+    x0 = np.asarray(x0, dtype=float)
+    if start is None:
+        e0, g0, psi0, hpsi0 = product.energy_gradient_and_hpsi(x0, ham)
+        start = Fit(x0.copy(), e0, g0, psi0, evaluations=1, hpsi=hpsi0)
+    best = start
+    if x0.size == 0 or best.gradient_norm < tolerance:
+        best.converged, best.message = True, "gradient below tolerance at the start"
+        return best, inverse_hessian
+    fun = _recording_objective(product, ham, best, deadline)
+    inverse_hessian = _positive_definite(inverse_hessian)
+    try:
+        with serial_blas():
+            res = minimize(fun, x0, jac=True, method="BFGS",
+                           options={"gtol": tolerance, "norm": 2, "hess_inv0": inverse_hessian,
+                                    "maxiter": max_iterations})
+    except _OutOfTime:
+        best.out_of_time, best.message = True, "time budget reached"
+        return best, inverse_hessian
+    best.iterations, best.message = int(res.nit), f"BFGS (recycled inverse Hessian): {res.message}"
+    best.converged = best.gradient_norm < tolerance
+    if not best.converged and best.iterations < max_iterations:
+        rest = minimise(product, ham, best.x, tolerance, max_iterations - best.iterations, deadline)
+        rest.iterations += best.iterations
+        rest.evaluations += best.evaluations
+        rest.message = f"{best.message}; then {rest.message}"
+        best = rest
+    return best, np.asarray(res.hess_inv)
+
+
+def _recording_objective(product: ExponentialProduct, ham: SectorHamiltonian, best: Fit, deadline):
+    """(E, gradient) of theta for scipy; ``best`` keeps the lowest point (with its state and H psi).
+
+    A call at ``best.x`` itself is answered from ``best`` (scipy's first call is at the start).
+    """
+    def fun(x):
+        if np.array_equal(x, best.x):
+            return best.energy, best.gradient
+        if deadline is not None and time.perf_counter() > deadline:
+            raise _OutOfTime
+        best.evaluations += 1
+        e, g, psi, hpsi = product.energy_gradient_and_hpsi(x, ham)
+        if e < best.energy or (e == best.energy and np.linalg.norm(g) < best.gradient_norm):
+            best.x, best.energy, best.gradient, best.state, best.hpsi = x.copy(), e, g, psi, hpsi
+        return e, g
+    return fun
 
 
 def _polish(evaluate, x, e, g, psi, tolerance: float, max_steps: int, memory: int = 20):
@@ -621,15 +736,20 @@ class AdaptVQE:
     options = (
         Option("gradient_threshold", float, 1e-3, "stop when the Euclidean norm of the pool gradients is below this",
                greater_than=0.0),
-        Option("max_operators", int, 400, "cap on the number of operators added", minimum=0),
+        Option("max_operators", int, 1000, "cap on the number of operators added", minimum=0),
         _MAX_ITER,
         Option("gradient_tolerance", float, 1e-6, "tolerance of the final optimisation (gradient norm, Eh)",
                greater_than=0.0),
         Option("growth_tolerance", float, 1e-4, "tolerance of the re-optimisation after each addition "
                "(gradient norm, Eh; never below gradient_tolerance); the last product is then optimised "
                "to gradient_tolerance", greater_than=0.0),
+        Option("reoptimiser", str, "bfgs-recycled", "re-optimisation after each addition: bfgs-recycled "
+               "(BFGS warm-started from the previous inverse-Hessian estimate) or lbfgsb (L-BFGS-B afresh)",
+               choices=("bfgs-recycled", "lbfgsb")),
         Option("pool", str, "gsd", "sd: spin-orbital singles and doubles from the reference; gsd: "
                "generalised spin-orbital singles and doubles", choices=("sd", "gsd")),
+        Option("spin_complemented", bool, SPIN_COMPLEMENTED_DEFAULT, "each pool generator with its alpha<->beta "
+               "mirror image on one parameter (two factors, the mirror second)"),
     )
     variational = True
     stochastic = False
@@ -643,8 +763,8 @@ class AdaptVQE:
         else:
             candidates = (generalised_singles(n, ALPHA) + generalised_singles(n, BETA)
                           + generalised_doubles(n))
-        pool = GeneratorPool(setup.space, candidates)          # built once, reused every iteration
-        growth = _AdaptGrowth(setup, pool, options)
+        groups = spin_complemented(candidates) if options["spin_complemented"] else [(c,) for c in candidates]
+        growth = _AdaptGrowth(setup, groups, options)
         stop = growth.grow()
         fit = growth.finish()
         fit.converged = stop == "converged" and fit.converged
@@ -653,13 +773,39 @@ class AdaptVQE:
             setup.notes.append("last re-optimisation did not reach its gradient tolerance")
         product = growth.product
         result = _result(problem, setup, product, fit, f"ADAPT ({options['pool']} pool)", {
-            "pool": options["pool"], "pool_size": len(pool), "adapt_iterations": len(growth.chosen),
+            "pool": options["pool"], "pool_size": len(groups), "adapt_iterations": len(growth.chosen),
+            "spin_complemented": options["spin_complemented"],
+            "reoptimiser": options["reoptimiser"], "stop": ADAPT_STOPS[stop],
+            "optimizer": RECYCLED_OPTIMIZER if options["reoptimiser"] == "bfgs-recycled" else OPTIMIZER,
+            **_stationary_point_checks(setup, fit, stop),
             "stop_reason": growth.stop_message, "remaining_pool_gradient_norm": growth.norms[-1],
-            "operator_sequence": [candidates[m].label() for m in growth.chosen],
+            "operator_sequence": [" + ".join(e.label() for e in groups[m]) for m in growth.chosen],
             "energy_trajectory": growth.trajectory, "pool_gradient_norms": growth.norms,
             "selected_gradients": growth.largest, "optimizer_iterations": fit.iterations})
         result.iterations = len(growth.chosen)
         return result
+
+
+#: ``metadata["stop"]`` of an ADAPT result, by the loop's stop: only 'small-pool-gradient' sets
+#: ``converged``, and it certifies a stationary point of the pool, not the ground state.
+ADAPT_STOPS = {"converged": "small-pool-gradient", "cap": "operator-cap", "out of time": "time-budget"}
+
+
+def _stationary_point_checks(setup: _Setup, fit: Fit, stop: str) -> dict:
+    """Diagnostics of the final state and the flag for a gate: 'converged' here is not 'accurate'.
+
+    ``stationary_point_only`` is true when the run stopped on a small pool gradient: the result's
+    ``converged`` then certifies a stationary point of the pool, which can be an excited one (every
+    pool gradient 2 <H psi|tau psi> vanishes at any eigenstate), so a gate should report a converged
+    result above its threshold as converged but failing.  ``reference_weight`` =
+    |<reference|psi>|^2 and ``energy_variance_ha2`` = <H^2> - <H>^2 (Eh^2) describe the state; neither
+    tells a ground state from an excited stationary point by itself.
+    """
+    weight = float(fit.state @ setup.reference) ** 2
+    hpsi = fit.hpsi if fit.hpsi is not None else setup.ham.apply(fit.state)
+    variance = max(float(hpsi @ hpsi) - float(fit.state @ hpsi) ** 2, 0.0)
+    return {"reference_weight": weight, "energy_variance_ha2": variance,
+            "stationary_point_only": stop == "converged"}
 
 
 class _AdaptGrowth:
@@ -668,52 +814,106 @@ class _AdaptGrowth:
     Each re-optimisation starts from the previous angles with the new one at zero and stops at
     ``growth_tolerance`` (a loose gradient norm: the next pool screening only needs the state,
     and the angles are refined again at every later addition); :meth:`finish` then optimises the
-    final product to ``gradient_tolerance``.
+    final product to ``gradient_tolerance``.  With ``reoptimiser`` 'bfgs-recycled' (default) each
+    re-optimisation is BFGS started from the previous one's inverse-Hessian estimate, bordered by
+    1 / d2E/dtheta2 of the new angle at zero (:meth:`_bordered_inverse_hessian`); 'lbfgsb' starts
+    L-BFGS-B afresh every time (the loop before the recycled estimate).
     """
 
-    def __init__(self, setup: _Setup, pool: GeneratorPool, options: dict):
-        self.setup, self.pool, self.options = setup, pool, options
+    def __init__(self, setup: _Setup, groups: list, options: dict):
+        self.setup, self.groups, self.options = setup, groups, options
+        self.pool = GeneratorPool(setup.space, [e for g in groups for e in g])   # built once, reused
+        self.member_group = np.repeat(np.arange(len(groups)), [len(g) for g in groups])
         self.tight = options["gradient_tolerance"]
         self.loose = max(options["growth_tolerance"], self.tight)
         self.chosen: list[int] = []
         self.product = ExponentialProduct(setup.space, [], reference=setup.reference)
         self.fit = minimise(self.product, setup.ham, np.zeros(0), self.tight, 1)
+        self.inverse_hessian = np.zeros((0, 0))
         self.trajectory, self.norms, self.largest = [setup.hf_energy], [], []
         self.iterations = self.evaluations = 0
         self.stop_message = ""
 
     def grow(self) -> str:
         """Add operators until a stop; returns 'converged', 'cap' or 'out of time'."""
-        threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
         while True:
-            grads = self.pool.gradients(self.fit.state, self.setup.ham.apply(self.fit.state))
+            hpsi = self.fit.hpsi if self.fit.hpsi is not None else self.setup.ham.apply(self.fit.state)
+            grads = np.bincount(self.member_group, weights=self.pool.gradients(self.fit.state, hpsi),
+                                minlength=len(self.groups))     # a shared angle: the members' sum
             norm = float(np.linalg.norm(grads))
             self.norms.append(norm)
             report_progress(iteration=len(self.chosen), energy_ha=self.fit.energy, gradient_norm=norm)
-            if norm < threshold:
-                self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
-                                     f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
-                                     "of the pool, not necessarily the ground state)")
-                self.setup.notes.append(self.stop_message)
-                return "converged"
-            if len(self.chosen) >= cap:
-                self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
-                                     f"{norm:.2e} (threshold {threshold:g})")
-                self.setup.notes.append(self.stop_message)
-                return "cap"
-            if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
-                self.stop_message = "time budget reached while growing"
-                return "out of time"
+            stop = self._stop(norm, grads)
+            if stop:
+                return stop
             pick = int(np.argmax(np.abs(grads)))
             self.largest.append(float(abs(grads[pick])))
             self.chosen.append(pick)
-            self.product = ExponentialProduct(self.setup.space, [self.pool.excitations[m] for m in self.chosen],
-                                              reference=self.setup.reference)
-            self._optimise(np.append(self.fit.x, 0.0), self.loose)
+            self.product = self.product.extended(self.groups[pick])
+            if self.options["reoptimiser"] == "bfgs-recycled":
+                self._optimise_recycled(hpsi, float(grads[pick]))
+            else:
+                self._optimise(np.append(self.fit.x, 0.0), self.loose)
             self.trajectory.append(self.fit.energy)
             if self.fit.out_of_time:
                 self.stop_message = "time budget reached while re-optimising"
                 return "out of time"
+
+    def _stop(self, norm: float, grads: np.ndarray) -> str:
+        """'converged', 'cap', 'out of time' or '' (go on), with the stop message and note."""
+        threshold, cap = self.options["gradient_threshold"], self.options["max_operators"]
+        if norm < threshold:
+            self.stop_message = (f"stopped on a small pool gradient: norm {norm:.2e} below the threshold "
+                                 f"{threshold:g} after {len(self.chosen)} operators (a stationary point "
+                                 "of the pool, not necessarily the ground state)")
+            self.setup.notes.append(self.stop_message)
+            return "converged"
+        if len(self.chosen) >= cap:
+            largest = float(np.max(np.abs(grads)))
+            share = int(np.sum(np.abs(grads) >= 0.01 * threshold))
+            tail = "; every one below the threshold: the norm is a tail of many small ones" if largest < threshold else ""
+            self.stop_message = (f"not converged: operator cap {cap} reached with pool gradient norm "
+                                 f"{norm:.2e} (threshold {threshold:g}); largest |gradient| {largest:.2e}, "
+                                 f"{share} of {grads.size} pool members at or above {0.01 * threshold:g}{tail}")
+            self.setup.notes.append(self.stop_message)
+            return "cap"
+        if self.setup.deadline is not None and time.perf_counter() > self.setup.deadline:
+            self.stop_message = "time budget reached while growing"
+            return "out of time"
+        return ""
+
+    def _bordered_inverse_hessian(self, hpsi: np.ndarray) -> np.ndarray:
+        """The last inverse-Hessian estimate plus a row and column for the new angle.
+
+        Its diagonal entry is 1 / E'' with E''(0) = <psi|[[H, tau], tau]|psi>
+        = 2 <H psi|tau^2 psi> + 2 <tau psi|H|tau psi> (tau real antisymmetric; one H application),
+        or 1 where E'' is below 0.05 Eh (flat or concave); for a spin-complemented pair tau is the sum of
+        the two generators (exact to first order in the shared angle: a starting estimate only).
+        """
+        old = self.inverse_hessian
+        n = old.shape[0] + 1
+        space, psi = self.setup.space, self.fit.state
+        taus = self.groups[self.chosen[-1]]
+        t_psi = sum(space.apply_generator(tau, psi) for tau in taus)
+        tt_psi = sum(space.apply_generator(tau, t_psi) for tau in taus)
+        curvature = 2.0 * float(hpsi @ tt_psi) + 2.0 * self.setup.ham.energy(t_psi)
+        h0 = np.eye(n)
+        h0[:-1, :-1] = old
+        h0[-1, -1] = 1.0 / curvature if curvature > 0.05 else 1.0
+        return h0
+
+    def _optimise_recycled(self, hpsi: np.ndarray, new_gradient: float) -> None:
+        """Warm BFGS after an addition; the start needs no evaluation: the new factor is the identity
+        at angle 0, so energy, state and old gradients are the last fit's, the new one its pool gradient."""
+        h0 = self._bordered_inverse_hessian(hpsi)
+        old = self.fit
+        start = Fit(np.append(old.x, 0.0), old.energy, np.append(old.gradient, new_gradient), old.state,
+                    hpsi=hpsi)
+        self.fit, self.inverse_hessian = minimise_recycled(
+            self.product, self.setup.ham, start.x, h0, self.loose, self.options["max_iterations"],
+            self.setup.deadline, start)
+        self.iterations += self.fit.iterations
+        self.evaluations += self.fit.evaluations
 
     def _optimise(self, x0, tolerance: float) -> None:
         self.fit = minimise(self.product, self.setup.ham, x0, tolerance, self.options["max_iterations"],
@@ -724,7 +924,14 @@ class _AdaptGrowth:
     def finish(self) -> Fit:
         """The final product optimised to ``gradient_tolerance`` (warm), with the run's totals."""
         if self.chosen and not self.fit.out_of_time and self.loose > self.tight:
-            self._optimise(self.fit.x, self.tight)
+            if self.options["reoptimiser"] == "bfgs-recycled":
+                self.fit, self.inverse_hessian = minimise_recycled(
+                    self.product, self.setup.ham, self.fit.x, self.inverse_hessian, self.tight,
+                    self.options["max_iterations"], self.setup.deadline)
+                self.iterations += self.fit.iterations
+                self.evaluations += self.fit.evaluations
+            else:
+                self._optimise(self.fit.x, self.tight)
             self.trajectory[-1] = self.fit.energy     # the same product, angles finished
         self.fit.iterations, self.fit.evaluations = self.iterations, self.evaluations
         return self.fit

@@ -270,7 +270,7 @@ def test_pool_gradient_sizes_are_checked_before_the_c_call(recording):
     pool = GeneratorPool(space, exc[:4], backend="numpy")
     psi = space.reference()
     with pytest.raises(ValueError, match="hpsi"):
-        c_pool_gradients(pool.table, psi, psi[:-1].copy(), np.zeros(4))
+        c_pool_gradients(pool.pairs, psi, psi[:-1].copy(), np.zeros(4))
     with pytest.raises(ValueError, match="gradient"):
-        c_pool_gradients(pool.table, psi, psi, np.zeros(3))
+        c_pool_gradients(pool.pairs, psi, psi, np.zeros(3))
     assert recording.calls == []

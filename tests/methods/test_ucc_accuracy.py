@@ -228,9 +228,26 @@ def test_adapt_records_trajectory_and_sequence():
     assert meta["pool_gradient_norms"][-1] < 1e-3 and result.converged
     assert all("->" in label for label in meta["operator_sequence"])
     assert result.energy_ha == pytest.approx(traj[-1], abs=1e-10)
+    assert meta["stop"] == "small-pool-gradient" and meta["stationary_point_only"]
+    assert 0.0 < meta["reference_weight"] <= 1.0 and meta["energy_variance_ha2"] >= 0.0
     capped = run(AdaptVQE(), problem, max_operators=3)
     assert capped.converged is False and capped.iterations == 3
     assert any("operator cap" in note for note in capped.metadata["notes"])
+    assert capped.metadata["stop"] == "operator-cap" and not capped.metadata["stationary_point_only"]
+
+
+def test_adapt_reoptimisers_reach_fci_alike():
+    """The recycled-BFGS loop, L-BFGS-B afresh and the spin-complemented pool all end within 1e-4 Eh of
+    FCI (PySCF, same orbital space) on the stretched H4 chain, where the reference is 0.1 Eh above it."""
+    problem = make_problem("h4-chain-1p5")
+    e_fci = fci_energy(problem.integrals)
+    for reoptimiser, mirrored in (("bfgs-recycled", False), ("lbfgsb", False), ("bfgs-recycled", True)):
+        result = run(AdaptVQE(), problem, reoptimiser=reoptimiser, spin_complemented=mirrored)
+        assert result.converged and result.metadata["reoptimiser"] == reoptimiser
+        assert result.metadata["spin_complemented"] is mirrored
+        check_variational(result, e_fci)
+        assert result.energy_ha - e_fci < 1e-4
+        assert result.metadata["gradient_norm"] < 1e-6
 
 
 def test_upccgsd_options():
