@@ -290,8 +290,13 @@ class Fit:
 
 
 def minimise(product: ExponentialProduct, ham: SectorHamiltonian, x0, tolerance: float,
-             max_iterations: int, deadline: float | None = None, max_restarts: int = 5) -> Fit:
+             max_iterations: int, deadline: float | None = None, max_restarts: int = 5,
+             progress: bool = False) -> Fit:
     """E(theta) minimised to Euclidean gradient norm < ``tolerance``.
+
+    ``progress``: report (evaluations, best energy, its gradient norm) through
+    :func:`~benchsuite.methods.base.report_progress` at every evaluation (a whole
+    VQE; ADAPT reports per operator instead).
 
     L-BFGS-B (restarted while it still lowers the energy), then, if the
     gradient is still above tolerance, :func:`_polish`: near the minimum of
@@ -320,6 +325,9 @@ def minimise(product: ExponentialProduct, ham: SectorHamiltonian, x0, tolerance:
         e, g, psi = evaluate(x)
         if e < best.energy or (e == best.energy and np.linalg.norm(g) < best.gradient_norm):
             best.x, best.energy, best.gradient, best.state = x.copy(), e, g, psi
+        if progress:
+            report_progress(iteration=best.evaluations, energy_ha=best.energy, gradient_norm=best.gradient_norm,
+                            stage="optimising")
         return e, g
 
     gtol = tolerance / math.sqrt(x0.size)
@@ -670,7 +678,7 @@ class UCCSDVQE:
             "mp2": lambda: first_order_guess(product, setup.ham, ints),
             "zeros": lambda: np.zeros(product.n_parameters)})
         fit = minimise(product, setup.ham, x0, options["gradient_tolerance"], options["max_iterations"],
-                       setup.deadline)
+                       setup.deadline, progress=True)
         return _result(problem, setup, product, fit,
                        "UCCSD, spin-orbital (not spin-adapted), one Trotter step",
                        {"initial": start, "excitations": [e.label() for e in excitations]})
@@ -714,7 +722,7 @@ class UpCCGSDVQE:
             if attempt:
                 x0 = rng.normal(scale=RANDOM_SCALE, size=product.n_parameters)
             fits.append(minimise(product, setup.ham, x0, options["gradient_tolerance"],
-                                 options["max_iterations"], setup.deadline))
+                                 options["max_iterations"], setup.deadline, progress=True))
             if fits[-1].out_of_time:
                 break
         fit = min(fits, key=lambda f: f.energy)

@@ -86,3 +86,27 @@ def test_method_tasks_start_longest_first(registry, tmp_path):
     costs = [p.predicted[k] for k in p.started]
     assert len(p.started) == 6 and costs == sorted(costs, reverse=True)
     assert p.started[0].startswith("lih/") and "uccsd-vqe" in p.started[0]      # the biggest sector first
+
+
+@pytest.mark.parametrize("method", ["uccsd-vqe", "adapt-vqe"])
+def test_builtin_solvers_report_their_iterations(method, registry, ladder_cache):
+    """In-process, with a listener: the records' energies never rise (best so far) and the last one
+    is the energy the method returns; PySCF FCI (the ladder's primary rung) bounds them from below."""
+    from benchsuite.methods import base
+    from benchsuite.methods.discovery import resolve_method
+    from benchsuite.methods.problem import build_problem
+
+    prepared = build_problem(registry.case("lih"), cache=ladder_cache)
+    obj, failure = resolve_method(method)
+    records = []
+    base.PROGRESS_LISTENERS.append(records.append)
+    try:
+        result = obj.run(prepared.problem, base.resolve_options(obj, {}))
+    finally:
+        base.PROGRESS_LISTENERS.remove(records.append)
+    energies = [r["energy_ha"] for r in records]
+    assert len(records) >= 3 and all("gradient_norm" in r and "iteration" in r for r in records)
+    if method == "uccsd-vqe":
+        assert energies == sorted(energies, reverse=True)
+    assert min(energies) >= prepared.reference.energy_ha - 1e-9
+    assert energies[-1] == pytest.approx(result.energy_ha, abs=2e-6)
