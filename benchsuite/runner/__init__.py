@@ -666,9 +666,13 @@ def _method_jobs(tasks, methods, cfg: GridConfig, ladders, failed, on_result) ->
 
 
 def task_size(task: Task, ladders: dict) -> TaskSize:
-    """The size of ``task``'s problem from its reference ladder's orbital space."""
-    space = ladders[_pair(task.case, task.basis)].space
-    return TaskSize.of_space(space.n_orbitals, space.n_alpha, space.n_beta)
+    """The size of ``task``'s problem from its reference ladder: orbital space and |E(primary) - E(CCSD(T))|."""
+    ladder = ladders[_pair(task.case, task.basis)]
+    primary, cc = ladder.primary, ladder.rung("ccsd(t)")
+    known = all(r is not None and r.status == "ok" and r.energy_ha is not None for r in (primary, cc))
+    space = ladder.space
+    return TaskSize.of_space(space.n_orbitals, space.n_alpha, space.n_beta,
+                             primary.energy_ha - cc.energy_ha if known else 0.0)
 
 
 def _scheduled(jobs: list[Job], ladders: dict, cfg: GridConfig, progress) -> list[Job]:

@@ -1,19 +1,24 @@
 """What a method task will cost, in seconds: scheduling order and the run's ETA.
 
-A task's size is read from its orbital space (known once the reference ladders are done, before
-any method runs): the spin-orbital count (``n_qubits`` before any reduction), the dimension of the
-(N_alpha, N_beta) sector and the number of spin-orbital singles and doubles from the reference
-(the UCCSD parameter count, a proxy for any ansatz's size).  The prior is
+A task's size is read from its orbital space and its reference ladder (both known once the ladders
+are done, before any method runs): the spin-orbital count (``n_qubits`` before any reduction), the
+dimension of the (N_alpha, N_beta) sector, the number of spin-orbital singles and doubles from the
+reference (the UCCSD parameter count, a proxy for any ansatz's size) and ``multireference_ha`` =
+|E(primary) - E(CCSD(T))|, how much CCSD(T) misses (it grows with static correlation, common
+practice as a multireference diagnostic; iterative solvers need more operators and iterations
+there).  The prior of a task's wall time in its worker is
 
-    seconds = overhead_s + scale_s * (dimension * n_excitations / 1e6) ** exponent
+    seconds = OVERHEAD_S + BUILD_S_PER_SO4 * n_so**4
+              + scale_s * (dimension * n_excitations / 1e6) ** a * ((multireference_ha + 1e-4) / 1e-3) ** b
 
-with one ``(scale_s, exponent)`` per built-in method, fitted to the timings of ``run --suite all``
-on the 2-core machine (README, performance table); a method without its own entry (a plugin) uses
-:data:`GENERIC_PRIOR`.  :class:`CostModel` refines the prior as tasks finish: each method's
-predictions are multiplied by the geometric mean of its observed/predicted ratios, shrunk toward
-one (``log f = sum(log r) / (n + 1)``), so a plugin's cost is learnt from its first few tasks.  A
-task that an earlier stored run measured (same task key) is predicted by that measurement
-(plus the overhead).
+with ``(scale_s, a, b)`` per built-in method in :data:`PRIORS`, fitted (least squares in the logs,
+then the scale set so that the predicted total equals the measured one) to ``run --suite all
+--method uccsd-vqe --method adapt-vqe`` on the 2-core machine; a method without its own entry (a
+plugin) uses :data:`GENERIC_PRIOR`.  :class:`CostModel` refines the prior as tasks finish: each
+method's predictions are multiplied by the geometric mean of its observed/predicted ratios, shrunk
+toward one (``log f = sum(log r) / (n + 1)``), so a plugin's cost is learnt from its first few
+tasks.  A task that an earlier stored run measured (same task key) is predicted by that measurement
+(plus the overhead and the build).
 
 :func:`makespan_s` turns predictions into an ETA: the pending tasks in the order the pool will
 start them, on ``workers`` workers that become free when their running tasks end (list
@@ -28,18 +33,22 @@ from dataclasses import dataclass
 from math import comb
 
 #: Seconds every method task pays before its method runs: a fork, the problem build from cached
-#: integrals, the state check and the problem figures (measured: hf-bitstring tasks, 2-core machine).
-OVERHEAD_S = 1.5
+#: integrals, the state check and the problem figures (the hf-bitstring tasks of a smoke run).
+OVERHEAD_S = 1.0
+#: The Hamiltonian build's growth with the register, s per spin-orbital**4 (``hamiltonian n2-tz-wide``:
+#: 120 spin-orbitals, about 40 s with the figures).
+BUILD_S_PER_SO4 = 2e-7
 
-#: (scale_s, exponent) per built-in method; see the module docstring.
+#: (scale_s, a, b) per built-in method; see the module docstring.  uccsd-vqe and adapt-vqe: fitted to
+#: the 114 tasks of ``run --suite all`` (2026-12-04, 2 workers); the others set by hand from smoke runs.
 PRIORS = {
-    "hf-bitstring": (0.0, 1.0),
-    "exact-sector": (3.0, 0.5),
-    "uccsd-vqe": (40.0, 1.0),
-    "upccgsd-vqe": (40.0, 1.0),
-    "adapt-vqe": (60.0, 1.0),
+    "hf-bitstring": (0.0, 1.0, 0.0),
+    "exact-sector": (0.3, 0.5, 0.0),
+    "uccsd-vqe": (1.91, 0.25, 0.19),
+    "upccgsd-vqe": (4.0, 0.25, 0.19),
+    "adapt-vqe": (24.1, 0.42, 0.29),
 }
-GENERIC_PRIOR = (20.0, 1.0)
+GENERIC_PRIOR = (5.0, 0.5, 0.0)
 
 
 @dataclass(frozen=True)
@@ -49,13 +58,15 @@ class TaskSize:
     n_spin_orbitals: int
     sector_dimension: int
     n_excitations: int
+    multireference_ha: float = 0.0       # |E(primary) - E(CCSD(T))|, 0 when either is missing
 
     @classmethod
-    def of_space(cls, n_orbitals: int, n_alpha: int, n_beta: int) -> "TaskSize":
+    def of_space(cls, n_orbitals: int, n_alpha: int, n_beta: int, multireference_ha: float = 0.0) -> "TaskSize":
         va, vb = n_orbitals - n_alpha, n_orbitals - n_beta
         singles = n_alpha * va + n_beta * vb
         doubles = comb(n_alpha, 2) * comb(va, 2) + comb(n_beta, 2) * comb(vb, 2) + n_alpha * va * n_beta * vb
-        return cls(2 * n_orbitals, comb(n_orbitals, n_alpha) * comb(n_orbitals, n_beta), singles + doubles)
+        return cls(2 * n_orbitals, comb(n_orbitals, n_alpha) * comb(n_orbitals, n_beta), singles + doubles,
+                   abs(multireference_ha))
 
     @property
     def work(self) -> float:
@@ -65,7 +76,8 @@ class TaskSize:
 
 def refused(method: str, size: TaskSize) -> bool:
     """Whether a built-in state-holding method refuses this size at once (a wide register or a
-    sector past :data:`benchsuite.methods.ucc.MAX_STATE_DETERMINANTS`): only the overhead is spent."""
+    sector past :data:`benchsuite.methods.ucc.MAX_STATE_DETERMINANTS`): only the overhead and the
+    problem build are spent."""
     from benchsuite.methods.ucc import MAX_STATE_DETERMINANTS
     from benchsuite.qubit.register import WORD_QUBITS
 
@@ -75,10 +87,11 @@ def refused(method: str, size: TaskSize) -> bool:
 
 def prior_s(method: str, size: TaskSize) -> float:
     """The prior cost of ``method`` on a problem of ``size``, in seconds."""
+    fixed = OVERHEAD_S + BUILD_S_PER_SO4 * size.n_spin_orbitals ** 4
     if refused(method, size):
-        return OVERHEAD_S
-    scale_s, exponent = PRIORS.get(method, GENERIC_PRIOR)
-    return OVERHEAD_S + scale_s * size.work ** exponent
+        return fixed
+    scale_s, a, b = PRIORS.get(method, GENERIC_PRIOR)
+    return fixed + scale_s * size.work ** a * ((size.multireference_ha + 1e-4) / 1e-3) ** b
 
 
 class CostModel:
@@ -102,7 +115,7 @@ class CostModel:
 
     def predict_s(self, key: str, method: str, size: TaskSize) -> float:
         if key in self.history:
-            guess = OVERHEAD_S + self.history[key]
+            guess = OVERHEAD_S + BUILD_S_PER_SO4 * size.n_spin_orbitals ** 4 + self.history[key]
         else:
             guess = prior_s(method, size) * self.factor(method)
         return guess if self.limit_s is None else min(guess, self.limit_s + OVERHEAD_S)

@@ -8,7 +8,7 @@ from itertools import combinations
 import pytest
 from pyscf.fci import cistring
 
-from benchsuite.runner.cost import (OVERHEAD_S, CostModel, TaskClock, TaskSize, longest_first, makespan_s,
+from benchsuite.runner.cost import (BUILD_S_PER_SO4, OVERHEAD_S, CostModel, TaskClock, TaskSize, longest_first, makespan_s,
                                     prior_s)
 
 
@@ -53,14 +53,15 @@ def test_refinement_learns_a_methods_factor_and_history_wins():
     assert model.factor("lab-solver") == pytest.approx(2 ** 0.75)
     assert model.predict_s("new", "lab-solver", size) == pytest.approx(base * 2 ** 0.75)
     assert model.factor("uccsd-vqe") == 1.0
-    assert model.predict_s("known", "lab-solver", size) == OVERHEAD_S + 7.0
+    assert model.predict_s("known", "lab-solver", size) == pytest.approx(OVERHEAD_S + BUILD_S_PER_SO4 * 12 ** 4 + 7.0)
     model.observe("x", "lab-solver", size, math.nan)               # no measurement, no change
     assert model.factor("lab-solver") == pytest.approx(2 ** 0.75)
 
 
 def test_clock_counts_pending_and_running_work():
-    model = CostModel(history={"a": 10.0 - OVERHEAD_S, "b": 4.0 - OVERHEAD_S, "c": 4.0 - OVERHEAD_S})
     size = TaskSize.of_space(2, 1, 1)
+    fixed = OVERHEAD_S + BUILD_S_PER_SO4 * 4 ** 4                 # a fork and a 4-spin-orbital build
+    model = CostModel(history={"a": 10.0 - fixed, "b": 4.0 - fixed, "c": 4.0 - fixed})
     clock = TaskClock(model, workers=2)
     clock.plan([(k, "m", size) for k in "abc"])
     assert clock.eta_s(0.0) == pytest.approx(10.0)                 # a | b then c
@@ -74,8 +75,21 @@ def test_clock_counts_pending_and_running_work():
 
 def test_refused_and_budget_bounded_predictions():
     """The 120-qubit N2/cc-pVTZ case (60 orbitals, 7 + 7 electrons): state-holding built-ins refuse it
-    at once, so only the overhead is predicted; no prediction exceeds the task's time budget."""
+    after the problem build, so only the overhead and the build are predicted; no prediction exceeds
+    the task's time budget."""
     wide = TaskSize.of_space(60, 7, 7)
-    assert prior_s("uccsd-vqe", wide) == OVERHEAD_S and prior_s("adapt-vqe", wide) == OVERHEAD_S
+    fixed = OVERHEAD_S + BUILD_S_PER_SO4 * 120 ** 4
+    assert prior_s("uccsd-vqe", wide) == fixed and prior_s("adapt-vqe", wide) == fixed
     assert prior_s("lab-solver", wide) > 1e6                       # a plugin may not refuse: no shortcut
     assert CostModel(limit_s=600.0).predict_s("k", "lab-solver", wide) == 600.0 + OVERHEAD_S
+
+
+def test_static_correlation_raises_the_prior():
+    """Same size, CCSD(T) missing 200 mHa (stretched N2) against 2 mHa (N2 at equilibrium): ADAPT's
+    prior grows by (200.1 / 2.1) ** b, the fitted exponent."""
+    from benchsuite.runner.cost import PRIORS
+
+    eq, stretched = TaskSize.of_space(10, 7, 7, 0.002), TaskSize.of_space(10, 7, 7, -0.2)
+    fixed = OVERHEAD_S + BUILD_S_PER_SO4 * 20 ** 4
+    ratio = (prior_s("adapt-vqe", stretched) - fixed) / (prior_s("adapt-vqe", eq) - fixed)
+    assert ratio == pytest.approx((200.1 / 2.1) ** PRIORS["adapt-vqe"][2])
