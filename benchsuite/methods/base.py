@@ -258,9 +258,6 @@ class Method(Protocol):
 #: process appends one that forwards the record, throttled, to the parent's progress display.
 PROGRESS_LISTENERS: list = []
 
-#: The fields a progress display shows; others are passed on to listeners but not displayed.
-PROGRESS_FIELDS = ("iteration", "energy_ha", "gradient_norm", "stage")
-
 
 def report_progress(iteration: int | None = None, energy_ha: float | None = None,
                     gradient_norm: float | None = None, stage: str | None = None) -> None:

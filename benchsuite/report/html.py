@@ -437,6 +437,21 @@ def _delta(energy, primary) -> float | None:
     return None if energy is None or primary is None else 1000.0 * (energy - primary)
 
 
+def _ladder_view(case: str, basis: str, space: str, scf: dict, primary: str | None, primary_energy_ha,
+                 rungs: dict, published: list) -> Ladder:
+    """The report's ladder: ``rungs`` maps a rung to ``{"energy_ha", "status"}``, ``published`` holds
+    ``{"method", "basis", "energy_ha", "source", "from_memory"}``; deltas against the primary in mHa."""
+    return Ladder(
+        case=case, basis=basis, space=space, scf_method=scf.get("method"), scf_converged=scf.get("converged"),
+        scf_stable=scf.get("stable"), scf_flags=list(scf.get("flags") or []), primary=primary,
+        primary_energy_ha=primary_energy_ha,
+        rungs=[Rung(name, v.get("energy_ha"), v.get("status", ""), _delta(v.get("energy_ha"), primary_energy_ha))
+               for name, v in sorted(rungs.items(), key=lambda kv: _rung_sort_key(kv[0]))],
+        published=[Published(p.get("method", ""), p.get("basis", basis), p["energy_ha"], p.get("source", ""),
+                             bool(p.get("from_memory")), _delta(p["energy_ha"], primary_energy_ha))
+                   for p in published or [] if p.get("energy_ha") is not None])
+
+
 def _ladders(rows) -> list[Ladder]:
     """One ladder per (case, basis) from the first row that carries one (every method shares it)."""
     seen: dict[tuple, Ladder] = {}
@@ -445,37 +460,19 @@ def _ladders(rows) -> list[Ladder]:
         rungs = (r.secondary or {}).get("rungs") or {}
         if key in seen and (seen[key].rungs or not rungs):
             continue
-        primary = r.reference_energy_ha
-        seen[key] = Ladder(
-            case=r.case, basis=r.basis, space=r.space, scf_method=(r.scf or {}).get("method"),
-            scf_converged=(r.scf or {}).get("converged"), scf_stable=(r.scf or {}).get("stable"),
-            scf_flags=list((r.scf or {}).get("flags") or []), primary=r.reference_method,
-            primary_energy_ha=primary,
-            rungs=[Rung(name, v.get("energy_ha"), v.get("status", ""), _delta(v.get("energy_ha"), primary))
-                   for name, v in sorted(rungs.items(), key=lambda kv: _rung_sort_key(kv[0]))],
-            published=[Published(p.get("method", ""), p.get("basis", r.basis), p["energy_ha"], p.get("source", ""),
-                                 bool(p.get("from_memory")), _delta(p["energy_ha"], primary))
-                       for p in (r.secondary or {}).get("published") or [] if p.get("energy_ha") is not None])
+        seen[key] = _ladder_view(r.case, r.basis, r.space, r.scf or {}, r.reference_method, r.reference_energy_ha,
+                                 rungs, (r.secondary or {}).get("published"))
     return list(seen.values())
 
 
 def _stored_ladders(references, rows) -> list[Ladder]:
     """The run's stored ladders (one per (case, basis) its rows point to), in scan order."""
     order = {(r.case, r.basis): (r.scan_parent or r.case, r.scan_length or 0.0) for r in rows}
-    out = []
-    for ref in sorted((f for f in references if (f.case, f.basis) in order),
-                      key=lambda f: (*order[(f.case, f.basis)], f.case, f.basis)):
-        doc, primary, scf = ref.ladder, ref.primary_energy_ha, ref.ladder.get("scf") or {}
-        out.append(Ladder(
-            case=ref.case, basis=ref.basis, space=ref.space, scf_method=scf.get("method"),
-            scf_converged=scf.get("converged"), scf_stable=scf.get("stable"), scf_flags=list(scf.get("flags") or []),
-            primary=ref.primary_method, primary_energy_ha=primary,
-            rungs=[Rung(g["method"], g.get("energy_ha"), g.get("status", ""), _delta(g.get("energy_ha"), primary))
-                   for g in sorted(doc.get("ladder") or [], key=lambda g: _rung_sort_key(g["method"]))],
-            published=[Published(p.get("method", ""), p.get("basis", ref.basis), p["energy_ha"], p.get("source", ""),
-                                 bool(p.get("from_memory")), _delta(p["energy_ha"], primary))
-                       for p in doc.get("published") or [] if p.get("energy_ha") is not None]))
-    return out
+    return [_ladder_view(ref.case, ref.basis, ref.space, ref.ladder.get("scf") or {}, ref.primary_method,
+                         ref.primary_energy_ha, {g["method"]: g for g in ref.ladder.get("ladder") or []},
+                         ref.ladder.get("published"))
+            for ref in sorted((f for f in references if (f.case, f.basis) in order),
+                              key=lambda f: (*order[(f.case, f.basis)], f.case, f.basis))]
 
 
 def _ladder_columns(ladders) -> list[str]:

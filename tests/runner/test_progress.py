@@ -17,12 +17,18 @@ def fast_log(monkeypatch):
     monkeypatch.setattr(progress_module, "LOG_EVERY_S", 0.5)
 
 
-def test_live_records_reach_the_plain_log(run_cli, tmp_path, fast_log):
-    code, out, err = run_cli("run", "--case", "h2", "--method", f"{PLUGINS}:ReportsProgress",
+def _running_lines(run_cli, tmp_path, plugin: str) -> tuple[list[str], str]:
+    """Run the plugin on H2 (threshold wide enough that HF passes); its log's ``running`` lines and stderr."""
+    code, out, err = run_cli("run", "--case", "h2", "--method", f"{PLUGINS}:{plugin}",
                              "--db", str(tmp_path / "r.sqlite"), "--threshold-mha", "50")
     assert code == 0, err
     running = [line for line in err.splitlines() if line.strip().startswith("running h2")]
     assert running, err
+    return running, err
+
+
+def test_live_records_reach_the_plain_log(run_cli, tmp_path, fast_log):
+    running, err = _running_lines(run_cli, tmp_path, "ReportsProgress")
     # the plugin reports iteration k with E = E_HF + 1/k and |g| = 0.5/k, throttled to one record a second
     last = running[-1]
     found = re.search(r"sweeping, iteration (\d+), E (-?\d+\.\d+) Eh, \|g\| (\d\.\de-\d\d)", last)
@@ -33,11 +39,7 @@ def test_live_records_reach_the_plain_log(run_cli, tmp_path, fast_log):
 
 
 def test_hostile_records_are_dropped_field_by_field(run_cli, tmp_path, fast_log):
-    code, out, err = run_cli("run", "--case", "h2", "--method", f"{PLUGINS}:ReportsHostileProgress",
-                             "--db", str(tmp_path / "r.sqlite"), "--threshold-mha", "50")
-    assert code == 0, err
-    running = [line for line in err.splitlines() if line.strip().startswith("running h2")]
-    assert running, err
+    running, _ = _running_lines(run_cli, tmp_path, "ReportsHostileProgress")
     for line in running:
         assert "nan" not in line and "iteration" not in line and "|g|" not in line and "\a" not in line
         assert "x" * 61 not in line                        # the stage is cut to 60 characters
