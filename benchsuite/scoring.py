@@ -67,9 +67,12 @@ def is_failing(verdict: str, allow_inconclusive: bool = False) -> bool:
 CONVERGED_FAILING = ("fail", "wrong-state")
 
 
-def converged_but_failing(verdict: str, converged: bool | None) -> bool:
-    """A result its method calls converged whose energy or state still fails: not a solver success."""
-    return converged is True and verdict in CONVERGED_FAILING
+def converged_but_failing(row) -> bool:
+    """A result (``verdict``, ``converged``, ``iterations``) whose method iterated and calls itself
+    converged, yet whose energy or state fails: not a solver success.  A result with no iterations
+    (a determinant's energy, an exact diagonalisation, a plugin leaving the defaults) stopped on no
+    criterion of its own and is not marked."""
+    return row.converged is True and (row.iterations or 0) > 0 and row.verdict in CONVERGED_FAILING
 
 
 def error_mha(energy_ha: float, reference_ha: float) -> float:

@@ -120,7 +120,7 @@ def decide(run_id: str, rows: list, settings, comparison=None) -> GateDecision:
         run_id=run_id, n_tasks=len(tasks), n_scored=len(scored), counts=counts, failing=failing,
         worst=min(scored, key=badness) if scored else None,
         unconverged=[t for t in tasks if t.converged is False],
-        converged_failing=sorted((t for t in tasks if converged_but_failing(t.verdict, t.converged)), key=badness),
+        converged_failing=sorted((t for t, r in zip(tasks, rows) if converged_but_failing(r)), key=badness),
         allow_inconclusive=settings.allow_inconclusive, require_converged=settings.require_converged,
         stochastic=_stochastic_summary(rows, settings), baseline=baseline, reasons=reasons)
 

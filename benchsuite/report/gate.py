@@ -36,7 +36,7 @@ def task_document(row) -> dict:
                           "review": _reference(row).get("review", "")},
             "error_mha": row.error_mha, "status": row.status, "verdict": row.verdict,
             "threshold_mha": row.threshold_mha, "converged": row.converged,
-            "converged_but_failing": converged_but_failing(row.verdict, row.converged), "iterations": row.iterations,
+            "converged_but_failing": converged_but_failing(row), "iterations": row.iterations,
             "seconds": row.seconds, "resources": row.resources, "message": row.message,
             "secondary": row.secondary, "scf": row.scf, "tags": row.tags, "task_key": row.task_key,
             "state_check": (row.metadata or {}).get("state_check")}
@@ -68,7 +68,7 @@ def failure_message(row) -> str:
             f"error = {_fmt(row.error_mha, '+.4f')} mHa (threshold {row.threshold_mha:.4f} mHa)"
             + (f", sigma = {1000 * row.stderr_ha:.4f} mHa" if row.stderr_ha else "")
             + ("; converged but failing: the method stopped on its own criterion"
-               if converged_but_failing(row.verdict, row.converged) else ""))
+               if converged_but_failing(row) else ""))
 
 
 def junit_xml(run, rows: list, gate: dict) -> bytes:

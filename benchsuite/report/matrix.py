@@ -156,7 +156,7 @@ def _cell(r, anchor: str, note: dict | None) -> MatrixCell:
     return MatrixCell(anchor=anchor, verdict=r.verdict, label=label, glyph=glyph, error_mha=r.error_mha,
                       ratio=ratio, scale=scale_class(r.error_mha, r.threshold_mha),
                       not_converged=r.converged is False and r.verdict != "unconverged",
-                      converged_failing=converged_but_failing(r.verdict, r.converged),
+                      converged_failing=converged_but_failing(r),
                       regression=(note or {}).get("regression"), config=list((note or {}).get("config") or []),
                       title=task_label(r.case, r.basis, r.encoding, r.method, full_encoding=True),
                       tags=list(r.tags))
