@@ -5,6 +5,7 @@ from __future__ import annotations
 import pytest
 
 from benchsuite.chem.ladder import reference_ladder
+from benchsuite.chem.space import prepare, solve_scf
 from benchsuite.constants import CHEMICAL_ACCURACY_MHA, HARTREE_KCAL_MOL
 from benchsuite.registry import Registry
 
@@ -102,6 +103,17 @@ def test_water_ccpvdz_published_values_in_case_file(registry, cache):
     assert computed, "the case file's published values name no rung the ladder computes"
     for pub, rung in computed:
         assert rung.energy_ha == pytest.approx(pub.energy_ha, abs=1e-5), pub.method
+
+
+def test_n2_ccpvdz_rhf_wang_li_lu(registry):
+    """N2/cc-pVDZ at R = 2.118 bohr, the first point of the n2-dz-fc curve: RHF -108.9493778784 Eh
+    (Z. Wang, Y. Li, J. Lu, J. Chem. Theory Comput. 15, 3558, 2019, section 4.1 system as given in
+    the authors' repository quan-tum/CDFCI, test/example/n2_ccpvdz/README.md; integrals from Psi4),
+    to 1e-7 Eh: the geometry, the basis and the SCF are those of that benchmark (frozen cores do not
+    change the RHF)."""
+    prep = solve_scf(prepare(registry.case("n2-dz-fc@2.118")))
+    assert prep.scf.converged and not prep.scf.symmetry_broken
+    assert prep.scf.energy_ha == pytest.approx(-108.9493778784, abs=1e-7)
 
 
 def test_h2_basis_set_limit_pachucki(registry, cache):
