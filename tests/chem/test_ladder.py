@@ -185,3 +185,19 @@ def test_a_non_finite_rung_is_failed_not_ok():
     assert "non-finite" in bad.note
     good = Rung("mp2", -1.0, -0.01, "full", 0.1)
     assert _finite_or_failed(good) is good
+
+
+@pytest.mark.parametrize("name, label, n_determinants", [
+    ("n2-dz-fc@2.118", "frozen core 2 (10e, 26o)", 4_327_008_400),
+    ("n2-dz-fc@4.2", "frozen core 2 (10e, 26o)", 4_327_008_400),
+    ("cr2-cas-12e20o", "CAS(12e, 20o), core 18", 1_502_337_600),
+])
+def test_beyond_exact_spaces_are_past_the_determinant_limit(registry, name, label, n_determinants):
+    """The N2/cc-pVDZ frozen-core curve and the Cr2 active space: comb(26, 5)^2 and comb(20, 6)^2
+    determinants (common practice: alpha and beta strings independent), so FCI/CASCI is skipped and
+    DMRG is the primary rung; the space is resolved without any SCF."""
+    from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
+
+    prep = prepare(registry.case(name))
+    assert prep.space.label == label
+    assert prep.space.n_determinants == n_determinants > DEFAULT_MAX_DETERMINANTS

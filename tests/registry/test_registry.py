@@ -68,20 +68,26 @@ def test_cases_command_json(run_cli):
 
 
 def test_beyond_exact_suites(registry):
-    """`beyond-exact` holds every case tagged beyond-exact (hydrogen chains of 14-20 atoms), each past
-    the default determinant limit in its space (STO-3G: one orbital per atom, half filling) and with
-    its own split-localised DMRG schedule; `beyond-exact-smoke` stays one case."""
+    """`beyond-exact` holds every case tagged beyond-exact, each with its own DMRG schedule: hydrogen
+    chains of 14-20 atoms (STO-3G, one orbital per atom, half filling: past the default determinant
+    limit by counting alone), the N2/cc-pVDZ frozen-core curve and the Cr2 active space (their spaces
+    are checked in tests/chem/test_space.py); `beyond-exact-smoke` stays one case."""
     from math import comb
 
     from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
 
     tagged = {c.name for c in registry.cases.values() if "beyond-exact" in c.tags}
     suite = {e.case.name for e in registry.suite_entries("beyond-exact")}
-    assert suite == tagged and len(suite) >= 6
+    assert suite == tagged
+    chains = {name for name in suite if set(registry.case(name).symbols) == {"H"}}
+    assert len(chains) >= 6
+    assert {"n2-dz-fc@2.118", "n2-dz-fc@4.2", "cr2-cas-12e20o"} <= suite
     for name in suite:
         case = registry.case(name)
-        n = len(case.symbols)
-        assert 14 <= n <= 20 and set(case.symbols) == {"H"}
-        assert comb(n, n // 2) ** 2 > DEFAULT_MAX_DETERMINANTS
-        assert case.dmrg is not None and case.dmrg.orbitals == "split-localised"
+        assert case.dmrg is not None and case.dmrg.orbitals == "split-localised", name
+        if name in chains:
+            n = len(case.symbols)
+            assert 14 <= n <= 20
+            assert comb(n, n // 2) ** 2 > DEFAULT_MAX_DETERMINANTS
+    assert any("transition-metal" in registry.case(name).tags for name in suite)
     assert len(registry.suite_entries("beyond-exact-smoke")) == 1
