@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from benchsuite.chem import scf as scf_module
-from benchsuite.chem.ladder import exact_in_space, reference_ladder
+from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS, exact_in_space, reference_ladder
 from benchsuite.chem.scf import build_mole, run_scf
 from benchsuite.chem.space import prepare, solve_scf
 from benchsuite.registry import Registry
@@ -196,8 +196,6 @@ def test_beyond_exact_spaces_are_past_the_determinant_limit(registry, name, labe
     """The N2/cc-pVDZ frozen-core curve and the Cr2 active space: comb(26, 5)^2 and comb(20, 6)^2
     determinants (common practice: alpha and beta strings independent), so FCI/CASCI is skipped and
     DMRG is the primary rung; the space is resolved without any SCF."""
-    from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
-
     prep = prepare(registry.case(name))
     assert prep.space.label == label
     assert prep.space.n_determinants == n_determinants > DEFAULT_MAX_DETERMINANTS

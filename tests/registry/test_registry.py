@@ -71,7 +71,7 @@ def test_beyond_exact_suites(registry):
     """`beyond-exact` holds every case tagged beyond-exact, each with its own DMRG schedule: hydrogen
     chains of 14-20 atoms (STO-3G, one orbital per atom, half filling: past the default determinant
     limit by counting alone), the N2/cc-pVDZ frozen-core curve and the Cr2 active space (their spaces
-    are checked in tests/chem/test_space.py); `beyond-exact-smoke` stays one case."""
+    are checked in tests/chem/test_ladder.py); `beyond-exact-smoke` stays one case."""
     from math import comb
 
     from benchsuite.chem.ladder import DEFAULT_MAX_DETERMINANTS
